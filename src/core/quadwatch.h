@@ -1,0 +1,253 @@
+/* quadwatch.h: the detection core, the one public header of libquadwatch.a.
+ *
+ * The core turns a stream of p-channel readings into Mahalanobis scores and
+ * raised/cleared alarms.  It does no I/O, keeps no globals, never logs, exits
+ * or aborts; every allocation happens in an _alloc call, none per reading.
+ * An acquisition program can embed it without the bus: link libquadwatch.a,
+ * GSL and libm.
+ *
+ * Prototypes are grouped by the file that defines them. */
+#ifndef QUADWATCH_H
+#define QUADWATCH_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- error.c ----------------------------------------------------------- */
+
+/* Every function that can fail returns 0 or one of these. */
+enum qw_err {
+	QW_OK = 0,         /* success */
+	QW_ENOMEM = -1,    /* an allocation failed */
+	QW_EINVAL = -2,    /* an argument is outside its documented range */
+	QW_ERANGE = -3,    /* a value is +-Inf, or so large its square overflows */
+	QW_ENUMERIC = -4,  /* the factor lost positive definiteness */
+	QW_ETIME = -5,     /* time went backwards under a half-life in seconds */
+	QW_ENODATA = -6,   /* every channel of the reading is missing */
+	QW_EFORMAT = -7,   /* bytes that do not follow the format */
+	QW_ETRUNC = -8,    /* input shorter than its header promises */
+	QW_EOVERSIZE = -9, /* input longer than the configured bound */
+	QW_ECOUNT = -10,   /* wrong number of channels or values */
+	QW_ENUMBER = -11,  /* text that is not a number, or out of range */
+	QW_EIO = -12,      /* a system call failed; errno tells why */
+	QW_EVERSION = -13, /* a saved state from another format version */
+	QW_ECHECKSUM = -14,/* a saved state whose checksum does not match */
+	QW_EMISMATCH = -15,/* a saved state for another configuration */
+	QW_ESTATE = -16    /* call not valid in the object's current state */
+};
+
+/* The one place every error passes through: records nothing, returns code.
+ * Put a breakpoint on qw_error to catch any failure at its origin. */
+int qw_error(int code, const char *file, int line);
+#define QW_ERROR(code) qw_error((code), __FILE__, __LINE__)
+
+/* A short English description of an enum qw_err value. */
+const char *qw_strerror(int code);
+
+/* ---- ewcov.c: exponentially weighted mean and Cholesky factor ------------ */
+
+/* The model S + f*F, S the EW covariance, F = diag(floor^2), f in [1/4, 1],
+ * kept as its lower Cholesky factor L; see ewcov.c for the update. */
+typedef struct qw_ewcov qw_ewcov;
+
+/* floor: p noise floors (std dev, channel units), each > 0.  Copied. */
+qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor);
+void qw_ewcov_free(qw_ewcov *ew);
+/* Forget everything learned (count 0, factor back to the floor). */
+void qw_ewcov_reset(qw_ewcov *ew);
+size_t qw_ewcov_p(const qw_ewcov *ew);
+uint64_t qw_ewcov_count(const qw_ewcov *ew);
+const double *qw_ewcov_mean(const qw_ewcov *ew);
+/* Learning weight for the next reading, given the steady EW weight lam in
+ * (0, 1): max(lam, 1/(n+1)), so warm-up is an ordinary mean and covariance. */
+double qw_ewcov_weight(const qw_ewcov *ew, double lam);
+/* Score x (all channels finite) before learning: r = x - mu, y = L^-1 r,
+ * *q = y'y.  Then, in the same sweep over L, prepare the factor of
+ * (1-w)(S + w r r') without installing it.  w in (0, 1].  Returns QW_ERANGE
+ * when q overflows, QW_ENUMERIC on a non-finite pivot; the model is untouched
+ * either way.  Requires count >= 1. */
+int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q);
+/* Install what the last qw_ewcov_score prepared, scaling the learned step by
+ * gain in (0, 1] (1 = learn as is; < 1 clips: redoes the sweep with r scaled
+ * by gain).  Updates the mean, the effective-size bookkeeping and tops the
+ * floor back up when due. */
+int qw_ewcov_learn(qw_ewcov *ew, double gain);
+/* First reading: sets the mean to x (finite), count to 1. */
+void qw_ewcov_first(qw_ewcov *ew, const double *x);
+/* Score a reading whose missing channels are NaN against the marginal model
+ * of the observed ones; *dof = number observed.  Does not learn. */
+int qw_ewcov_score_subset(qw_ewcov *ew, const double *x, double *q,
+			  unsigned *dof);
+/* Distribution of the next score: q ~ scale * T2(p, nu) (see limit.c). */
+double qw_ewcov_nu(const qw_ewcov *ew);
+double qw_ewcov_scale(const qw_ewcov *ew);
+/* The factor, packed by columns: column j holds L[j..p-1][j]. */
+const double *qw_ewcov_factor(const qw_ewcov *ew);
+/* Checks every element of L finite and every pivot > 0; QW_ENUMERIC if not,
+ * after rebuilding the factor from the floor (the mean is kept). */
+int qw_ewcov_verify(qw_ewcov *ew);
+
+/* Serialised state (for checkpoints): qw_ewcov_state_len() doubles. */
+size_t qw_ewcov_state_len(const qw_ewcov *ew);
+void qw_ewcov_state_get(const qw_ewcov *ew, double *buf);
+int qw_ewcov_state_set(qw_ewcov *ew, const double *buf);
+
+/* ---- limit.c: false-alarm rate to control limit ----------------------- */
+
+#define QW_SECONDS_PER_DAY 86400.0
+
+/* Per-reading exceedance probability alpha such that the rate of raised
+ * alarms under a k-of-m rule equals alarms_per_day at rate readings/s. */
+int qw_limit_alpha(double alarms_per_day, double rate, unsigned k,
+		   unsigned m, double *alpha);
+/* Upper chi-square quantile: P(chi2(dof) > limit) = alpha (known
+ * parameters; no finite-sample correction). */
+double qw_limit_chisq(double alpha, unsigned dof);
+/* Limit corrected for an estimated mean and covariance of effective size
+ * nu: scale * nu*dof/(nu-dof+1) * F^-1(1-alpha; dof, nu-dof+1).  +Inf when
+ * nu <= dof - 1 + QW_LIMIT_NU_MARGIN (too little data to score). */
+double qw_limit_corrected(double alpha, unsigned dof, double nu, double scale);
+/* Upper-tail probability of q under the same corrected distribution. */
+double qw_limit_pvalue(double q, unsigned dof, double nu, double scale);
+#define QW_LIMIT_NU_MARGIN 1.0 /* readings of slack before F's 2nd dof > 1 */
+
+/* ---- alarm.c: persistence (k of last m) and hysteresis ---------------- */
+
+#define QW_ALARM_MAX_M 64 /* window fits one uint64_t of bits */
+
+enum qw_event {
+	QW_EVENT_NONE = 0, /* no change of alarm state */
+	QW_EVENT_RAISE = 1,/* the group went into alarm on this reading */
+	QW_EVENT_CLEAR = 2 /* the group left alarm on this reading */
+};
+
+struct qw_alarm {
+	uint64_t window;   /* bit i: reading i back was over the limit */
+	unsigned k, m;     /* raise when >= k of the last m are over */
+	unsigned clear_n;  /* clear after clear_n consecutive readings under */
+	unsigned under;    /* consecutive readings under, while in alarm */
+	int in_alarm;      /* 1 while raised */
+};
+
+int qw_alarm_init(struct qw_alarm *a, unsigned k, unsigned m,
+		  unsigned clear_n);
+void qw_alarm_reset(struct qw_alarm *a);
+/* Feed one scored reading; returns an enum qw_event. */
+int qw_alarm_add(struct qw_alarm *a, int over);
+
+/* ---- explain.c: which channels drove a score --------------------------- */
+
+struct qw_contrib {
+	unsigned channel;  /* index into the group's channels */
+	double drop;       /* q minus q without this channel: w_i^2/(S^-1)_ii */
+	double z;          /* r_i / sqrt(S_ii): the channel's own deviation */
+};
+
+/* ---- detector.c: one sensor group ------------------------------------- */
+
+enum qw_learn {
+	QW_LEARN_SKIP = 0, /* readings over the limit teach nothing */
+	QW_LEARN_CLIP = 1, /* they teach a step shrunk to the limit's edge */
+	QW_LEARN_ALL = 2   /* everything is learned (no contamination guard) */
+};
+
+struct qw_params {
+	size_t p;               /* channels, 1..QW_MAX_P */
+	double half_life;       /* readings, or seconds when time_based */
+	int time_based;         /* 1: half_life in seconds, weight follows dt */
+	double rate;            /* nominal readings per second, > 0 */
+	double alarms_per_day;  /* raised-alarm rate to deliver, > 0 */
+	uint64_t warmup;        /* readings learned before any alarm */
+	unsigned persist_k;     /* raise when persist_k ... */
+	unsigned persist_m;     /* ... of the last persist_m are over */
+	unsigned clear_n;       /* consecutive readings under to clear */
+	const double *floor;    /* p floors (std dev, units); NULL/0 = auto */
+	enum qw_learn learn;    /* contamination guard */
+	uint64_t relearn_after; /* readings in alarm before automatic
+				   re-baseline; 0 = only on request */
+	int correct;            /* 1: finite-sample corrected limit (default);
+				   0: plain chi-square (for comparison) */
+};
+
+#define QW_MAX_P 4096 /* channels per group; the factor is p^2/2 doubles */
+
+/* Defaults for everything but p (see detector.c for values and why). */
+void qw_params_default(struct qw_params *par, size_t p);
+int qw_params_check(const struct qw_params *par);
+
+struct qw_result {
+	double q;          /* squared Mahalanobis distance before learning */
+	double limit;      /* control limit for this reading (Inf in warm-up) */
+	double nu;         /* effective size behind the limit (for p-value) */
+	double scale;      /* scale behind the limit (for p-value) */
+	unsigned dof;      /* channels observed */
+	int scored;        /* 1 when q is meaningful (count >= 1) */
+	int over;          /* q > limit and warm-up done */
+	int event;         /* enum qw_event */
+	int in_alarm;      /* alarm state after this reading */
+	int learned;       /* the reading updated the model */
+	size_t ncontrib;   /* entries in contrib (0 unless over) */
+	const struct qw_contrib *contrib; /* ranked by drop, owned by the
+					     detector, valid until next add */
+};
+
+struct qw_counters {
+	uint64_t readings;    /* readings offered to qw_detector_add */
+	uint64_t scored;      /* readings with a score */
+	uint64_t learned;     /* readings that updated the model */
+	uint64_t exceedances; /* scored readings over the limit (post warm-up) */
+	uint64_t alarms;      /* raise events */
+	uint64_t partial;     /* readings with some channels missing */
+	uint64_t rej_nonfinite; /* rejected: a channel +-Inf */
+	uint64_t rej_overflow;  /* rejected: score overflowed */
+	uint64_t rej_time;      /* rejected: time went backwards */
+	uint64_t rej_empty;     /* rejected: every channel missing */
+	uint64_t numeric;       /* factor rebuilt after a numeric fault */
+	uint64_t rebaselines;   /* re-baselines, requested or automatic */
+};
+
+typedef struct qw_detector qw_detector;
+
+qw_detector *qw_detector_alloc(const struct qw_params *par);
+void qw_detector_free(qw_detector *d);
+/* One reading: t in seconds (only differences matter), x[p] with NaN for a
+ * missing channel.  Rejections return their code, are counted, and leave
+ * the model untouched; res is always filled. */
+int qw_detector_add(qw_detector *d, double t, const double *x,
+		    struct qw_result *res);
+/* Restart learning from nothing (operator command). */
+void qw_detector_rebaseline(qw_detector *d);
+const struct qw_counters *qw_detector_counters(const qw_detector *d);
+const struct qw_params *qw_detector_params(const qw_detector *d);
+const qw_ewcov *qw_detector_model(const qw_detector *d);
+int qw_detector_in_alarm(const qw_detector *d);
+/* Per-reading alpha and the limit once the model is at full effective
+ * size (what `check` prints). */
+double qw_detector_alpha(const qw_detector *d);
+double qw_detector_steady_limit(const qw_detector *d);
+/* The limit in force for the next full reading. */
+double qw_detector_limit(const qw_detector *d);
+
+/* Serialised state (for checkpoints): qw_detector_state_len() doubles. */
+size_t qw_detector_state_len(const qw_detector *d);
+void qw_detector_state_get(const qw_detector *d, double *buf);
+int qw_detector_state_set(qw_detector *d, const double *buf);
+
+/* ---- explain.c --------------------------------------------------------- */
+
+/* Attribution of r = x - mu against the factor L (packed by columns, p x p)
+ * for the channels with mask[i] != 0 (NULL = all): fills out[0..n-1] ranked
+ * by drop, n = channels used.  work: 2*p*p + 4*p doubles.  O(p^3). */
+size_t qw_explain(const double *L, size_t p, const double *r,
+		  const unsigned char *mask, double *work,
+		  struct qw_contrib *out);
+size_t qw_explain_work_len(size_t p);
+
+#ifdef __cplusplus
+}
+#endif
+#endif /* QUADWATCH_H */

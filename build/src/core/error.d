@@ -1,0 +1,2 @@
+build/src/core/error.o: src/core/error.c src/core/quadwatch.h
+src/core/quadwatch.h:

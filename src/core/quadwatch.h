@@ -91,10 +91,14 @@ const double *qw_ewcov_factor(const qw_ewcov *ew);
  * after rebuilding the factor from the floor (the mean is kept). */
 int qw_ewcov_verify(qw_ewcov *ew);
 
-/* Serialised state (for checkpoints): qw_ewcov_state_len() doubles. */
+/* Serialised state for checkpoints: qw_ewcov_state_len() bytes in host
+ * order (the checkpoint file adds version, size and checksum).  _set checks
+ * every value (finite, pivots > 0, shares in range): QW_EMISMATCH when len
+ * or p differ, QW_EFORMAT when a value is impossible; the model is then
+ * unchanged. */
 size_t qw_ewcov_state_len(const qw_ewcov *ew);
-void qw_ewcov_state_get(const qw_ewcov *ew, double *buf);
-int qw_ewcov_state_set(qw_ewcov *ew, const double *buf);
+void qw_ewcov_state_get(const qw_ewcov *ew, void *buf);
+int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len);
 
 /* ---- limit.c: false-alarm rate to control limit ----------------------- */
 
@@ -219,8 +223,9 @@ void qw_detector_free(qw_detector *d);
  * the model untouched; res is always filled. */
 int qw_detector_add(qw_detector *d, double t, const double *x,
 		    struct qw_result *res);
-/* Restart learning from nothing (operator command). */
-void qw_detector_rebaseline(qw_detector *d);
+/* Restart learning from nothing (operator command).  Returns 1 when the
+ * group was in alarm (the alarm is cleared: publish a clear), else 0. */
+int qw_detector_rebaseline(qw_detector *d);
 const struct qw_counters *qw_detector_counters(const qw_detector *d);
 const struct qw_params *qw_detector_params(const qw_detector *d);
 const qw_ewcov *qw_detector_model(const qw_detector *d);
@@ -232,10 +237,11 @@ double qw_detector_steady_limit(const qw_detector *d);
 /* The limit in force for the next full reading. */
 double qw_detector_limit(const qw_detector *d);
 
-/* Serialised state (for checkpoints): qw_detector_state_len() doubles. */
+/* Serialised state for checkpoints (model, counters, alarm state), as for
+ * qw_ewcov_state_*: bytes in host order, checked on _set. */
 size_t qw_detector_state_len(const qw_detector *d);
-void qw_detector_state_get(const qw_detector *d, double *buf);
-int qw_detector_state_set(qw_detector *d, const double *buf);
+void qw_detector_state_get(const qw_detector *d, void *buf);
+int qw_detector_state_set(qw_detector *d, const void *buf, size_t len);
 
 /* ---- explain.c --------------------------------------------------------- */
 

@@ -1,0 +1,2 @@
+build/src/core/alarm.o: src/core/alarm.c src/core/quadwatch.h
+src/core/quadwatch.h:

@@ -1,0 +1,487 @@
+/* ewcov.c: exponentially weighted mean and covariance of p channels, kept
+ * as the lower Cholesky factor L of Sigma = S + f F, where
+ *   mu' = mu + w r,   S' = (1-w)(S + w r r'),   r = x - mu,
+ * F = diag(floor^2) is the noise floor and f in [1/4, 1] the share of it
+ * still in the factor (the scale by 1-w shrinks it too; it is topped back up
+ * to f = 1 every p readings, or sooner when f falls below 1/2, by p rank-one
+ * updates: O(p^3) every p readings, O(p^2) amortised).
+ *
+ * One sweep over L scores and updates (the fused form).  The score is
+ * q = y'y with L y = r (forward substitution, column by column), and the
+ * rank-one update of L L' + w r r' is Method C1 of Gill, Golub, Murray and
+ * Saunders, "Methods for modifying matrix factorizations", Math. Comp. 28
+ * (1974), 505-535, which works from that same solved vector: written for
+ * the non-unit factor and fused with the scale by c = sqrt(1-w), column j
+ * with pivot l = L_jj and y_j = u_j / l (u the running residual) becomes
+ *   g   = sqrt(1 + a_j y_j^2)             (step 2: d'_j = d_j g^2)
+ *   L'_jj = c l g
+ *   u_i  -= y_j L_ij                      (forward substitution)
+ *   L'_ij = c g L_ij + (c a_j y_j / g) u_i  (step 3: l' = l + beta u)
+ *   a_{j+1} = a_j / g^2,  a_1 = w.
+ * The new factor goes to a second buffer, installed by qw_ewcov_learn only
+ * when the caller decides the reading may be learned: a reading that is
+ * not learned costs one sweep and leaves the model bit for bit as it was.
+ *
+ * Storage: both factors packed by columns, so the inner loop runs over
+ * contiguous memory and vectorises.  Workload: one sweep of p(p+1)/2
+ * elements per reading, p from 1 to a few hundred.
+ *
+ * The effective size behind the limit is tracked by scalar recursions for
+ * stationary Gaussian data: V = Var(mu)/Sigma, and the Satterthwaite sums
+ * W1 = sum a_k, W2 = sum a_k^2 over the weights a_k = c_k (1 + V_{k-1}) of
+ * the terms r_k r_k' in S.  The next r has covariance (1+V) Sigma and S is
+ * close to W1 Sigma Wishart(nu)/nu with nu = W1^2/W2, so
+ *   q ~ scale * nu p/(nu-p+1) F(p, nu-p+1),  scale = (1+V)/W1.
+ * With weights 1/n this is exact (nu = n-1, the Phase II Hotelling form);
+ * at steady state nu -> (2-lam)/lam and scale -> 1/(1-lam). */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "quadwatch.h"
+
+/* Auto floor, for channels configured without one: a relative resolution
+ * of 1e-7 of the first value (about float32's 6e-8), never below 1e-12 in
+ * channel units.  A numerical guard only; the real sensor resolution
+ * belongs in the configuration. */
+#define EWCOV_AUTO_FLOOR_REL 1e-7
+#define EWCOV_AUTO_FLOOR_MIN 1e-12
+/* Top the floor back up once its share in the factor falls below this. */
+#define EWCOV_FLOOR_MIN_SHARE 0.5
+
+struct qw_ewcov {
+	size_t p;
+	uint64_t n;          /* readings learned */
+	double *mu;          /* p: EW mean */
+	double *L;           /* packed factor of Sigma = S + f F */
+	double *Ln;          /* packed factor prepared by the last score */
+	double *floor;       /* p: configured floors, 0 = auto (std dev) */
+	double *floorsq;     /* p: F_ii, resolved at the first reading */
+	double *r;           /* p: x - mu of the last scored reading */
+	double *u;           /* p: forward-substitution residual (work) */
+	double *sub;         /* p*p: marginal factor for partial readings */
+	size_t *idx;         /* p: observed channels of a partial reading */
+	double f;            /* share of F in the factor, [1/4, 1] */
+	size_t since_topup;  /* readings learned since the last top-up */
+	double w;            /* weight the pending factor was made with */
+	int pending;         /* Ln holds the update for r and w */
+	double V;            /* Var(mu)/Sigma */
+	double W1, W2;       /* Satterthwaite sums of S's term weights */
+};
+
+void qw_ewcov_free(qw_ewcov *ew)
+{
+	if (ew == NULL)
+		return;
+	free(ew->mu);
+	free(ew->L);
+	free(ew->Ln);
+	free(ew->floor);
+	free(ew->floorsq);
+	free(ew->r);
+	free(ew->u);
+	free(ew->sub);
+	free(ew->idx);
+	free(ew);
+}
+
+qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor)
+{
+	qw_ewcov *ew;
+	size_t i;
+
+	if (p < 1 || p > QW_MAX_P || floor == NULL)
+		return NULL;
+	for (i = 0; i < p; i++)
+		if (!(floor[i] >= 0) || !isfinite(floor[i]))
+			return NULL;
+	ew = calloc(1, sizeof *ew);
+	if (ew == NULL)
+		goto fail;
+	ew->p = p;
+	ew->mu = malloc(p * sizeof *ew->mu);
+	ew->L = malloc(qw_packed_len(p) * sizeof *ew->L);
+	ew->Ln = malloc(qw_packed_len(p) * sizeof *ew->Ln);
+	ew->floor = malloc(p * sizeof *ew->floor);
+	ew->floorsq = malloc(p * sizeof *ew->floorsq);
+	ew->r = malloc(p * sizeof *ew->r);
+	ew->u = malloc(p * sizeof *ew->u);
+	ew->sub = malloc(p * p * sizeof *ew->sub);
+	ew->idx = malloc(p * sizeof *ew->idx);
+	if (!ew->mu || !ew->L || !ew->Ln || !ew->floor || !ew->floorsq ||
+	    !ew->r || !ew->u || !ew->sub || !ew->idx)
+		goto fail;
+	memcpy(ew->floor, floor, p * sizeof *floor);
+	qw_ewcov_reset(ew);
+	return ew;
+fail:
+	qw_ewcov_free(ew);
+	return NULL;
+}
+
+/* L = sqrt(F) on the diagonal, zero elsewhere; f = 1. */
+static void ewcov_factor_from_floor(qw_ewcov *ew)
+{
+	size_t j, p = ew->p;
+
+	memset(ew->L, 0, qw_packed_len(p) * sizeof *ew->L);
+	for (j = 0; j < p; j++)
+		ew->L[qw_packed_col(p, j)] = sqrt(ew->floorsq[j]);
+	ew->f = 1.0;
+	ew->since_topup = 0;
+	ew->pending = 0;
+}
+
+void qw_ewcov_reset(qw_ewcov *ew)
+{
+	size_t i;
+
+	ew->n = 0;
+	for (i = 0; i < ew->p; i++) {
+		ew->mu[i] = 0.0;
+		/* An auto floor is resolved again at the next first reading. */
+		ew->floorsq[i] = ew->floor[i] > 0 ? ew->floor[i] * ew->floor[i]
+						  : 1.0;
+	}
+	ewcov_factor_from_floor(ew);
+	ew->V = 1.0;
+	ew->W1 = 0.0;
+	ew->W2 = 0.0;
+}
+
+size_t qw_ewcov_p(const qw_ewcov *ew)
+{
+	return ew->p;
+}
+
+uint64_t qw_ewcov_count(const qw_ewcov *ew)
+{
+	return ew->n;
+}
+
+const double *qw_ewcov_mean(const qw_ewcov *ew)
+{
+	return ew->mu;
+}
+
+const double *qw_ewcov_factor(const qw_ewcov *ew)
+{
+	return ew->L;
+}
+
+double qw_ewcov_weight(const qw_ewcov *ew, double lam)
+{
+	double run = 1.0 / ((double)ew->n + 1.0);
+
+	return lam > run ? lam : run;
+}
+
+void qw_ewcov_first(qw_ewcov *ew, const double *x)
+{
+	size_t i;
+	double fl;
+
+	for (i = 0; i < ew->p; i++) {
+		ew->mu[i] = x[i];
+		if (ew->floor[i] > 0)
+			continue;
+		fl = EWCOV_AUTO_FLOOR_REL * fabs(x[i]);
+		if (fl < EWCOV_AUTO_FLOOR_MIN)
+			fl = EWCOV_AUTO_FLOOR_MIN;
+		ew->floorsq[i] = fl * fl;
+	}
+	ewcov_factor_from_floor(ew);
+	ew->n = 1;
+	ew->V = 1.0; /* the mean is one reading */
+	ew->W1 = 0.0;
+	ew->W2 = 0.0;
+}
+
+/* The fused sweep: from u = r (overwritten), the factor src and weight a
+ * (the update is src src' + a r r', then scaled by c), writes dst and
+ * returns q = |src^-1 r|^2.  dst may equal src (in-place update), so no
+ * restrict on them.  j0: first column where r is non-zero (the columns
+ * before it are copied unchanged when dst != src). */
+static double ewcov_sweep(const double *src, double *dst, size_t p,
+			  double *restrict u, double a, double c, size_t j0)
+{
+	size_t j, i, len, off = qw_packed_col(p, j0);
+	double q = 0.0;
+
+	if (dst != src && off > 0)
+		memcpy(dst, src, off * sizeof *dst);
+	for (j = j0; j < p; j++) {
+		const double *s = src + off;
+		double *d = dst + off;
+		double yj = u[j] / s[0];
+		double g2 = 1.0 + a * yj * yj;
+		double g = sqrt(g2);
+		double A = c * g, B = c * a * yj / g;
+		double *uj = u + j;
+
+		len = p - j;
+		q += yj * yj;
+		d[0] = A * s[0];
+		for (i = 1; i < len; i++) {
+			double ui = uj[i] - yj * s[i];
+			uj[i] = ui;
+			d[i] = A * s[i] + B * ui;
+		}
+		a /= g2;
+		off += len;
+	}
+	return q;
+}
+
+int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
+{
+	size_t i, p = ew->p;
+	double qq;
+
+	ew->pending = 0;
+	if (ew->n < 1 || !(w > 0.0 && w <= 1.0))
+		return QW_ERROR(QW_ESTATE);
+	for (i = 0; i < p; i++) {
+		ew->r[i] = x[i] - ew->mu[i];
+		ew->u[i] = ew->r[i];
+	}
+	qq = ewcov_sweep(ew->L, ew->Ln, p, ew->u, w, sqrt(1.0 - w), 0);
+	/* q finite implies every y_j, g and so every new element finite. */
+	if (!isfinite(qq))
+		return QW_ERROR(QW_ERANGE);
+	*q = qq;
+	ew->w = w;
+	ew->pending = 1;
+	return 0;
+}
+
+/* Adds (1 - f) F back into the factor: p rank-one updates with vectors
+ * sqrt((1-f) F_ii) e_i, each starting at column i. */
+static void ewcov_topup(qw_ewcov *ew)
+{
+	size_t i, p = ew->p;
+	double add = 1.0 - ew->f;
+
+	if (add > 0.0) {
+		for (i = 0; i < p; i++) {
+			memset(ew->u, 0, p * sizeof *ew->u);
+			ew->u[i] = sqrt(add * ew->floorsq[i]);
+			ewcov_sweep(ew->L, ew->L, p, ew->u, 1.0, 1.0, i);
+		}
+	}
+	ew->f = 1.0;
+	ew->since_topup = 0;
+}
+
+int qw_ewcov_learn(qw_ewcov *ew, double gain)
+{
+	size_t i, p = ew->p;
+	double w = ew->w, a, *t;
+
+	if (!ew->pending || !(gain > 0.0 && gain <= 1.0))
+		return QW_ERROR(QW_ESTATE);
+	ew->pending = 0;
+	if (gain < 1.0) {
+		/* Clipped step: the reading replaced by mu + gain r. */
+		for (i = 0; i < p; i++) {
+			ew->r[i] *= gain;
+			ew->u[i] = ew->r[i];
+		}
+		ewcov_sweep(ew->L, ew->Ln, p, ew->u, w, sqrt(1.0 - w), 0);
+	}
+	t = ew->L;
+	ew->L = ew->Ln;
+	ew->Ln = t;
+	for (i = 0; i < p; i++)
+		ew->mu[i] += w * ew->r[i];
+	/* Effective-size recursions (file top); V before its own update. */
+	a = (1.0 - w) * w * (1.0 + ew->V);
+	ew->W1 = (1.0 - w) * ew->W1 + a;
+	ew->W2 = (1.0 - w) * (1.0 - w) * ew->W2 + a * a;
+	ew->V = (1.0 - w) * (1.0 - w) * ew->V + w * w;
+	ew->n++;
+	ew->f *= 1.0 - w;
+	ew->since_topup++;
+	if (ew->since_topup >= p || ew->f < EWCOV_FLOOR_MIN_SHARE)
+		ewcov_topup(ew);
+	return 0;
+}
+
+int qw_ewcov_score_subset(qw_ewcov *ew, const double *x, double *q,
+			  unsigned *dof)
+{
+	size_t i, m = 0, p = ew->p;
+	double qq = 0.0;
+
+	ew->pending = 0;
+	if (ew->n < 1)
+		return QW_ERROR(QW_ESTATE);
+	for (i = 0; i < p; i++) {
+		if (isnan(x[i]))
+			continue;
+		ew->idx[m] = i;
+		ew->u[m] = x[i] - ew->mu[i];
+		m++;
+	}
+	if (m == 0)
+		return QW_ERROR(QW_ENODATA);
+	qw_marginal_cov(ew->L, p, ew->idx, m, ew->sub);
+	if (qw_dense_cholesky(ew->sub, m) != 0)
+		return QW_ERROR(QW_ENUMERIC);
+	qw_dense_forward(ew->sub, m, ew->u);
+	for (i = 0; i < m; i++)
+		qq += ew->u[i] * ew->u[i];
+	if (!isfinite(qq))
+		return QW_ERROR(QW_ERANGE);
+	/* r for attribution: missing channels as 0 (masked out there). */
+	for (i = 0; i < p; i++)
+		ew->r[i] = isnan(x[i]) ? 0.0 : x[i] - ew->mu[i];
+	*q = qq;
+	*dof = (unsigned)m;
+	return 0;
+}
+
+const double *qw_ewcov_residual(const qw_ewcov *ew)
+{
+	return ew->r;
+}
+
+double qw_ewcov_nu(const qw_ewcov *ew)
+{
+	return ew->W2 > 0.0 ? ew->W1 * ew->W1 / ew->W2 : 0.0;
+}
+
+double qw_ewcov_scale(const qw_ewcov *ew)
+{
+	return ew->W1 > 0.0 ? (1.0 + ew->V) / ew->W1 : INFINITY;
+}
+
+int qw_ewcov_verify(qw_ewcov *ew)
+{
+	size_t j, i, off = 0, p = ew->p;
+	int bad = 0;
+
+	for (j = 0; j < p && !bad; j++) {
+		if (!(ew->L[off] > 0.0))
+			bad = 1;
+		for (i = 0; i < p - j; i++)
+			if (!isfinite(ew->L[off + i]))
+				bad = 1;
+		off += p - j;
+	}
+	for (i = 0; i < p; i++)
+		if (!isfinite(ew->mu[i]))
+			bad = 1;
+	if (!bad)
+		return 0;
+	/* Keep a finite mean; the covariance restarts from the floor and
+	 * its effective size from nothing, so the limit stays honest. */
+	for (i = 0; i < p; i++)
+		if (!isfinite(ew->mu[i]))
+			ew->mu[i] = 0.0;
+	ewcov_factor_from_floor(ew);
+	ew->n = ew->n > 0 ? 1 : 0;
+	ew->V = 1.0;
+	ew->W1 = 0.0;
+	ew->W2 = 0.0;
+	return QW_ERROR(QW_ENUMERIC);
+}
+
+/* State layout: a fixed header of scalars, then mu[p], floorsq[p] and the
+ * packed factor.  Host order: a checkpoint is read back on the same host. */
+struct ewcov_state_head {
+	uint64_t p, n, since_topup;
+	double f, V, W1, W2;
+};
+
+size_t qw_ewcov_state_len(const qw_ewcov *ew)
+{
+	return sizeof(struct ewcov_state_head) +
+	       (2 * ew->p + qw_packed_len(ew->p)) * sizeof(double);
+}
+
+void qw_ewcov_state_get(const qw_ewcov *ew, void *buf)
+{
+	struct ewcov_state_head h;
+	unsigned char *b = buf;
+	size_t p = ew->p;
+
+	memset(&h, 0, sizeof h);
+	h.p = p;
+	h.n = ew->n;
+	h.since_topup = ew->since_topup;
+	h.f = ew->f;
+	h.V = ew->V;
+	h.W1 = ew->W1;
+	h.W2 = ew->W2;
+	memcpy(b, &h, sizeof h);
+	b += sizeof h;
+	memcpy(b, ew->mu, p * sizeof(double));
+	b += p * sizeof(double);
+	memcpy(b, ew->floorsq, p * sizeof(double));
+	b += p * sizeof(double);
+	memcpy(b, ew->L, qw_packed_len(p) * sizeof(double));
+}
+
+/* 1 when every value of a state is possible for a model of order p. */
+static int ewcov_state_sane(const struct ewcov_state_head *h,
+			    const double *mu, const double *fsq,
+			    const double *L, size_t p)
+{
+	size_t j, i, off = 0;
+
+	if (!(h->f >= 0.0 && h->f <= 1.0) || !(h->V >= 0.0 && h->V <= 1.0) ||
+	    !(h->W1 >= 0.0) || !(h->W2 >= 0.0) || !isfinite(h->W1) ||
+	    !isfinite(h->W2) || h->since_topup > p)
+		return 0;
+	for (i = 0; i < p; i++)
+		if (!isfinite(mu[i]) || !(fsq[i] > 0.0) || !isfinite(fsq[i]))
+			return 0;
+	for (j = 0; j < p; j++) {
+		if (!(L[off] > 0.0))
+			return 0;
+		for (i = 0; i < p - j; i++)
+			if (!isfinite(L[off + i]))
+				return 0;
+		off += p - j;
+	}
+	return 1;
+}
+
+int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len)
+{
+	struct ewcov_state_head h;
+	const unsigned char *b = buf;
+	size_t p = ew->p;
+	const double *mu, *fsq, *L;
+	double *tmp;
+
+	if (len != qw_ewcov_state_len(ew))
+		return QW_ERROR(QW_EMISMATCH);
+	memcpy(&h, b, sizeof h);
+	if (h.p != p)
+		return QW_ERROR(QW_EMISMATCH);
+	/* The doubles are copied to aligned storage before they are read:
+	 * sub and Ln are scratch of at least the needed size. */
+	tmp = ew->sub;
+	memcpy(tmp, b + sizeof h, 2 * p * sizeof(double));
+	memcpy(ew->Ln, b + sizeof h + 2 * p * sizeof(double),
+	       qw_packed_len(p) * sizeof(double));
+	mu = tmp;
+	fsq = tmp + p;
+	L = ew->Ln;
+	if (!ewcov_state_sane(&h, mu, fsq, L, p))
+		return QW_ERROR(QW_EFORMAT);
+	memcpy(ew->mu, mu, p * sizeof(double));
+	memcpy(ew->floorsq, fsq, p * sizeof(double));
+	memcpy(ew->L, L, qw_packed_len(p) * sizeof(double));
+	ew->n = h.n;
+	ew->since_topup = (size_t)h.since_topup;
+	ew->f = h.f;
+	ew->V = h.V;
+	ew->W1 = h.W1;
+	ew->W2 = h.W2;
+	ew->pending = 0;
+	return 0;
+}

@@ -16,12 +16,23 @@
  *    cannot bias the model;
  *  - relearn_after readings spent in alarm re-baseline the group (the
  *    configured policy for a lasting change of normal).
+ * Guard bias: a model that learns only readings with q < c (skip) learns
+ * the truncated Gaussian, whose covariance is kappa Sigma with
+ *   kappa = P(chi2(p+2) < c) / P(chi2(p) < c)
+ * (the second moment of x 1{x' Sigma^-1 x < c} is Sigma P(chi2(p+2) < c));
+ * under clip, kappa = P(chi2(p+2) < c) + (c/p) P(chi2(p) > c).  The scores
+ * come out 1/kappa too large, so the limit is divided by
+ * 1 - (1 - kappa) t, t the share of the model learned under the guard
+ * (tracked like the EW weights).  Tiny at alpha 1e-6, but 3-7% of the
+ * scale at the alpha of 1-3% that k-of-m rules need, and a raise rate goes
+ * as alpha^k.
  * Workload: the per-reading path is the ewcov sweep plus O(p); no
  * allocation after qw_detector_alloc. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
 #include "internal.h"
@@ -50,6 +61,8 @@ struct qw_detector {
 	double *lim_nu;            /* p+1: nu each was computed at, 0 none */
 	double last_t;             /* time of the last learned reading */
 	uint64_t alarm_run;        /* readings since the raise */
+	double kappa;              /* guard bias of Sigma (file top) */
+	double tshare;             /* share of the model learned guarded */
 	struct qw_counters cnt;
 	double *work;              /* explain workspace */
 	unsigned char *mask;       /* p: observed channels */
@@ -116,6 +129,19 @@ static double det_lam(double steps, double half_life)
 	return -expm1(-M_LN2 * steps / half_life);
 }
 
+/* kappa of the file top for a guard at the chi-square alpha point. */
+static double det_kappa(double alpha, size_t p, enum qw_learn learn)
+{
+	double dp = (double)p, c = gsl_cdf_chisq_Qinv(alpha, dp);
+	double in2 = gsl_cdf_chisq_P(c, dp + 2.0);
+
+	if (learn == QW_LEARN_SKIP)
+		return in2 / (1.0 - alpha);
+	if (learn == QW_LEARN_CLIP)
+		return in2 + c / dp * alpha;
+	return 1.0;
+}
+
 qw_detector *qw_detector_alloc(const struct qw_params *par)
 {
 	qw_detector *d;
@@ -149,6 +175,7 @@ qw_detector *qw_detector_alloc(const struct qw_params *par)
 	d->lam = det_lam(par->time_based ? 1.0 / par->rate : 1.0,
 			 par->half_life);
 	qw_alarm_init(&d->alarm, par->persist_k, par->persist_m, par->clear_n);
+	d->kappa = det_kappa(d->alpha, p, par->learn);
 	return d;
 fail:
 	qw_detector_free(d);
@@ -163,6 +190,7 @@ int qw_detector_rebaseline(qw_detector *d)
 	qw_alarm_reset(&d->alarm);
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
 	d->alarm_run = 0;
+	d->tshare = 0.0;
 	d->cnt.rebaselines++;
 	return was;
 }
@@ -176,6 +204,8 @@ static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
 	if (!d->par.correct) {
 		nu = INFINITY;
 		scale = 1.0;
+	} else {
+		scale /= 1.0 - (1.0 - d->kappa) * d->tshare;
 	}
 	*nu_out = nu;
 	*scale_out = scale;
@@ -240,7 +270,7 @@ static int det_score(qw_detector *d, const double *x, size_t nobs,
 }
 
 /* Learning decision and step (file top).  Returns 1 if learned. */
-static int det_learn(qw_detector *d, int complete, int warm,
+static int det_learn(qw_detector *d, int complete, int warm, double w,
 		     struct qw_result *res)
 {
 	double gain = 1.0;
@@ -257,6 +287,7 @@ static int det_learn(qw_detector *d, int complete, int warm,
 	}
 	if (qw_ewcov_learn(d->ew, gain) != 0)
 		return 0;
+	d->tshare = (1.0 - w) * d->tshare + (warm ? w : 0.0);
 	d->cnt.learned++;
 	/* Self-check of the factor every p readings: O(p) amortised. */
 	if (d->cnt.learned % d->par.p == 0 && qw_ewcov_verify(d->ew) != 0)
@@ -316,7 +347,7 @@ int qw_detector_add(qw_detector *d, double t, const double *x,
 	}
 	if (res->over)
 		det_explain(d, res);
-	res->learned = det_learn(d, nobs == d->par.p, warm, res);
+	res->learned = det_learn(d, nobs == d->par.p, warm, w, res);
 	if (res->learned)
 		d->last_t = t;
 	d->alarm_run = d->alarm.in_alarm ? d->alarm_run + 1 : 0;
@@ -362,7 +393,7 @@ double qw_detector_steady_limit(const qw_detector *d)
 	/* Fixed point of ewcov.c's recursions: nu = (2-lam)/lam,
 	 * scale = 1/(1-lam). */
 	return qw_limit_corrected(d->alpha, (unsigned)d->par.p,
-				  (2.0 - lam) / lam, 1.0 / (1.0 - lam));
+				  (2.0 - lam) / lam, 1.0 / (d->kappa * (1.0 - lam)));
 }
 
 double qw_detector_limit(const qw_detector *d)
@@ -372,7 +403,8 @@ double qw_detector_limit(const qw_detector *d)
 	if (!d->par.correct)
 		return qw_limit_chisq(d->alpha, p);
 	return qw_limit_corrected(d->alpha, p, qw_ewcov_nu(d->ew),
-				  qw_ewcov_scale(d->ew));
+				  qw_ewcov_scale(d->ew) /
+					  (1.0 - (1.0 - d->kappa) * d->tshare));
 }
 
 /* Detector state: this head, then the model's own state. */
@@ -381,7 +413,7 @@ struct det_state_head {
 	struct qw_counters cnt;
 	uint64_t window, alarm_run;
 	uint32_t under, in_alarm;
-	double last_t;
+	double last_t, tshare;
 };
 
 size_t qw_detector_state_len(const qw_detector *d)
@@ -401,6 +433,7 @@ void qw_detector_state_get(const qw_detector *d, void *buf)
 	h.under = d->alarm.under;
 	h.in_alarm = (uint32_t)d->alarm.in_alarm;
 	h.last_t = d->last_t;
+	h.tshare = d->tshare;
 	memcpy(buf, &h, sizeof h);
 	qw_ewcov_state_get(d->ew, (unsigned char *)buf + sizeof h);
 }
@@ -418,7 +451,8 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 		return QW_ERROR(QW_EMISMATCH);
 	mask = d->alarm.m == 64 ? ~(uint64_t)0
 				: (((uint64_t)1 << d->alarm.m) - 1);
-	if (h.in_alarm > 1 || (h.window & ~mask) != 0 || isnan(h.last_t))
+	if (h.in_alarm > 1 || (h.window & ~mask) != 0 || isnan(h.last_t) ||
+	    !(h.tshare >= 0.0 && h.tshare <= 1.0))
 		return QW_ERROR(QW_EFORMAT);
 	rc = qw_ewcov_state_set(d->ew, (const unsigned char *)buf + sizeof h,
 				len - sizeof h);
@@ -430,6 +464,7 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 	d->alarm.in_alarm = (int)h.in_alarm;
 	d->alarm_run = h.alarm_run;
 	d->last_t = h.last_t;
+	d->tshare = h.tshare;
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
 	return 0;
 }

@@ -12,7 +12,8 @@
  * With the mean and covariance estimated from an effective size nu (see
  * ewcov.c), q ~ scale * nu p/(nu-p+1) F(p, nu-p+1): the Phase II Hotelling
  * T-squared form (e.g. Montgomery, Introduction to Statistical Quality
- * Control, section 11.3), via gsl_cdf_fdist_Qinv.  Workload: a few calls
+ * Control, the chapter on multivariate control charts; cited from memory),
+ * via root finding on gsl_cdf_fdist_Q.  Workload: a few calls
  * per effective-size change, not per reading. */
 #include <math.h>
 
@@ -22,6 +23,11 @@
 #include "quadwatch.h"
 
 #define LIMIT_BISECT_STEPS 200 /* halvings of log(a): far below 1 ulp */
+/* F quantile by root finding: GSL's gsl_cdf_fdist_Qinv fails to converge
+ * (betainv.c) for second dof in the thousands, exactly where an EW model
+ * with a long half-life lives, so solve Q(x) = alpha on log x instead. */
+#define LIMIT_ROOT_STEPS 200  /* Illinois steps; ~10 are used */
+#define LIMIT_ROOT_RTOL 1e-14 /* relative width of the final bracket */
 
 /* log P(raise) for per-reading probability a under k of m. */
 static double limit_log_raise(double a, unsigned k, unsigned m)
@@ -59,6 +65,51 @@ int qw_limit_alpha(double alarms_per_day, double rate, unsigned k,
 	return 0;
 }
 
+/* log Q_F(e^lx; d1, d2) - log alpha. */
+static double limit_f_gap(double lx, double d1, double d2, double la)
+{
+	return log(gsl_cdf_fdist_Q(exp(lx), d1, d2)) - la;
+}
+
+/* Upper quantile of F(d1, d2): Q(x) = alpha, bracketed around the
+ * chi-square value, then Illinois (regula falsi) on log x. */
+static double limit_f_qinv(double alpha, double d1, double d2)
+{
+	double la = log(alpha), x0 = gsl_cdf_chisq_Qinv(alpha, d1) / d1;
+	double lo = log(x0), hi = lo, glo, ghi, m, gm;
+	int i, side = 0;
+
+	glo = limit_f_gap(lo, d1, d2, la);
+	while (glo < 0 && lo > -700) /* Q(lo) < alpha: lo is too high */
+		glo = limit_f_gap(lo -= 1.0, d1, d2, la);
+	ghi = limit_f_gap(hi, d1, d2, la);
+	while (ghi > 0 && hi < 700)
+		ghi = limit_f_gap(hi += 1.0, d1, d2, la);
+	if (!(glo >= 0) || !(ghi <= 0))
+		return NAN;
+	for (i = 0; i < LIMIT_ROOT_STEPS && hi - lo > LIMIT_ROOT_RTOL; i++) {
+		m = (glo - ghi) != 0 ? lo + glo * (hi - lo) / (glo - ghi)
+				     : 0.5 * (lo + hi);
+		if (!(m > lo && m < hi))
+			m = 0.5 * (lo + hi);
+		gm = limit_f_gap(m, d1, d2, la);
+		if (gm == 0)
+			return exp(m);
+		if (gm > 0) {
+			lo = m, glo = gm;
+			if (side == 1)
+				ghi *= 0.5; /* Illinois: halve the stale end */
+			side = 1;
+		} else {
+			hi = m, ghi = gm;
+			if (side == -1)
+				glo *= 0.5;
+			side = -1;
+		}
+	}
+	return exp(0.5 * (lo + hi));
+}
+
 double qw_limit_chisq(double alpha, unsigned dof)
 {
 	return gsl_cdf_chisq_Qinv(alpha, (double)dof);
@@ -73,7 +124,7 @@ double qw_limit_corrected(double alpha, unsigned dof, double nu, double scale)
 	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale))
 		return INFINITY;
 	d2 = nu - d + 1.0;
-	return scale * nu * d / d2 * gsl_cdf_fdist_Qinv(alpha, d, d2);
+	return scale * nu * d / d2 * limit_f_qinv(alpha, d, d2);
 }
 
 double qw_limit_pvalue(double q, unsigned dof, double nu, double scale)

@@ -95,7 +95,7 @@ static void run_calibration(size_t p, double half_life, size_t n)
 		const double *x = sim_next(&s);
 
 		for (i = 0; i < 2; i++) {
-			assert_int_equal(qw_detector_add(d[i], k / RATE_HZ, x,
+			assert_int_equal(qw_detector_add(d[i], (double)k / RATE_HZ, x,
 							 &res), 0);
 			if (res.scored && k >= par.warmup) {
 				over[i] += res.q > res.limit;
@@ -151,7 +151,7 @@ static void run_persistence(unsigned k, unsigned m, double target)
 	assert_non_null(d);
 	sim_init(&s, p, 4242 + k * 100 + m);
 	for (i = 0; i < n; i++) {
-		assert_int_equal(qw_detector_add(d, i / RATE_HZ, sim_next(&s),
+		assert_int_equal(qw_detector_add(d, (double)i / RATE_HZ, sim_next(&s),
 						 &res), 0);
 		if (i >= par.warmup) {
 			after++;
@@ -186,7 +186,7 @@ static qw_detector *trained(struct sim *s, struct qw_params *par, size_t n)
 
 	assert_non_null(d);
 	for (i = 0; i < n; i++)
-		qw_detector_add(d, i / RATE_HZ, sim_next(s), &res);
+		qw_detector_add(d, (double)i / RATE_HZ, sim_next(s), &res);
 	return d;
 }
 
@@ -312,7 +312,7 @@ static int run_stuck(double floor_stuck, double *q_step)
 		if (i == 0)
 			level = x[2]; /* stuck at the value it had */
 		x[2] = i < n ? level : level + step;
-		assert_int_equal(qw_detector_add(d, 300 + i / RATE_HZ, x, &res),
+		assert_int_equal(qw_detector_add(d, 300 + (double)i / RATE_HZ, x, &res),
 				 0);
 		assert_true(isfinite(res.q) && isfinite(res.limit));
 		for (size_t c = 0; c < res.ncontrib; c++)
@@ -368,7 +368,7 @@ static int run_contamination(enum qw_learn learn, int *still)
 	for (i = 0; i < n; i++) {
 		memcpy(x, sim_next(&s), sizeof x);
 		x[0] += 5 * sd0;
-		qw_detector_add(d, 400 + i / RATE_HZ, x, &res);
+		qw_detector_add(d, 400 + (double)i / RATE_HZ, x, &res);
 		if (i >= n - 100)
 			overs += res.over;
 	}
@@ -381,7 +381,7 @@ static int run_contamination(enum qw_learn learn, int *still)
 		for (i = 0; i < 6000; i++) {
 			memcpy(x, sim_next(&s), sizeof x);
 			x[0] += 5 * sd0;
-			qw_detector_add(d, 800 + i / RATE_HZ, x, &res);
+			qw_detector_add(d, 800 + (double)i / RATE_HZ, x, &res);
 			raises += res.event == QW_EVENT_RAISE;
 		}
 		assert_int_equal(raises, 0);

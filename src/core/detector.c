@@ -38,8 +38,10 @@
 #include "internal.h"
 #include "quadwatch.h"
 
-/* Limit cache tolerance: recompute the F quantile when nu has moved by
- * this share since; the limit then moves by well under 1e-4 relative. */
+/* Limit cache: the F quantile is computed at nu rounded down to a
+ * geometric grid of this relative step, so the limit is a pure function of
+ * the model (identical after a restore) and recomputed ~ln(nu)/step times
+ * in a model's life; the rounding moves the limit by well under 1e-4. */
 #define QW_DET_NU_RTOL 1e-3
 /* Defaults (our choices, documented in quadwatch.ini(5)). */
 #define QW_DEF_HALF_LIFE 2000.0 /* readings: ~ 3.3 min at 10 Hz */
@@ -58,7 +60,7 @@ struct qw_detector {
 	double lam;                /* EW weight per reading (readings mode),
 				      or at the nominal rate (time mode) */
 	double *lim_f;             /* p+1: cached nu d/(nu-d+1) F^-1, by dof */
-	double *lim_nu;            /* p+1: nu each was computed at, 0 none */
+	double *lim_nu;            /* p+1: grid nu each was computed at */
 	double last_t;             /* time of the last learned reading */
 	uint64_t alarm_run;        /* readings since the raise */
 	double kappa;              /* guard bias of Sigma (file top) */
@@ -207,12 +209,20 @@ static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
 	} else {
 		scale /= 1.0 - (1.0 - d->kappa) * d->tshare;
 	}
-	*nu_out = nu;
 	*scale_out = scale;
-	if (!(nu > dof - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale))
+	if (!(nu > dof - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale)) {
+		*nu_out = nu;
 		return INFINITY;
-	if (d->lim_nu[dof] == 0 ||
-	    fabs(nu - d->lim_nu[dof]) > QW_DET_NU_RTOL * nu) {
+	}
+	if (isfinite(nu)) {
+		double step = log1p(QW_DET_NU_RTOL);
+		double grid = exp(floor(log(nu) / step) * step);
+
+		/* Never round below the usable range. */
+		nu = grid > dof - 1.0 + QW_LIMIT_NU_MARGIN ? grid : nu;
+	}
+	*nu_out = nu; /* the p-value uses the limit's own nu */
+	if (d->lim_nu[dof] != nu) {
 		d->lim_f[dof] = qw_limit_corrected(d->alpha, dof, nu, 1.0);
 		d->lim_nu[dof] = nu;
 	}
@@ -254,6 +264,12 @@ static int det_score(qw_detector *d, const double *x, size_t nobs,
 		rc = qw_ewcov_score_subset(d->ew, x, &res->q, &res->dof);
 	}
 	if (rc == QW_ERANGE) {
+		/* A non-finite score: the reading overflowed, or the factor
+		 * itself is corrupt (then rebuilt from the floor). */
+		if (qw_ewcov_verify(d->ew) != 0) {
+			d->cnt.numeric++;
+			return QW_ERROR(QW_ENUMERIC);
+		}
 		d->cnt.rej_overflow++;
 		return rc;
 	}

@@ -1,0 +1,115 @@
+/* helper_core.c: prints core results for the Python reference checks
+ * (tests/ref_core.py, run by tests/t_ref_scipy.sh and t_ref_numpy.sh).
+ *   helper_core limits            grid of alpha, chi-square, corrected
+ *                                 limits and p-values
+ *   helper_core scores P N H SEED  a generated stream and its scores
+ * It computes; the Python side holds the expectations. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_errno.h>
+
+#include "quadwatch.h"
+#include "qwtest.h"
+
+static int limits(void)
+{
+	const double alphas[] = {0.1, 0.01, 1e-3, 2.385e-5, 1e-7};
+	const unsigned dofs[] = {1, 2, 3, 7, 16, 64, 200};
+	const double nus[] = {40, 577.3, 5770, 1e5};
+	const double apd[] = {0.5, 1, 24, 2.385};
+	const double rates[] = {1, 10, 250};
+	const unsigned km[][2] = {{1, 1}, {2, 3}, {3, 5}, {5, 10}};
+	size_t a, d, n, i, j;
+	double al;
+
+	for (a = 0; a < 5; a++)
+		for (d = 0; d < 7; d++) {
+			printf("chisq %.17g %u %.17g\n", alphas[a], dofs[d],
+			       qw_limit_chisq(alphas[a], dofs[d]));
+			for (n = 0; n < 4; n++) {
+				double l = qw_limit_corrected(alphas[a], dofs[d],
+							      nus[n], 1.25);
+
+				if (isfinite(l))
+					printf("corrected %.17g %u %.17g 1.25 "
+					       "%.17g\n", alphas[a], dofs[d],
+					       nus[n], l);
+			}
+		}
+	for (a = 0; a < 4; a++)
+		for (i = 0; i < 3; i++)
+			for (j = 0; j < 4; j++) {
+				if (qw_limit_alpha(apd[a], rates[i], km[j][0],
+						   km[j][1], &al) != 0)
+					return 1;
+				printf("alpha %.17g %.17g %u %u %.17g\n", apd[a],
+				       rates[i], km[j][0], km[j][1], al);
+			}
+	for (d = 0; d < 7; d++)
+		printf("pvalue %.17g %u %.17g 1.1 %.17g\n", 1.7 * dofs[d],
+		       dofs[d], 812.5,
+		       qw_limit_pvalue(1.7 * dofs[d], dofs[d], 812.5, 1.1));
+	return 0;
+}
+
+/* A correlated stream with some missing channels and outliers; learn =
+ * all, so the reference needs no limit to know what was learned. */
+static int scores(size_t p, size_t n, double h, unsigned long seed)
+{
+	struct qw_params par;
+	struct qw_result res;
+	qw_detector *d;
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double *A = malloc(p * p * 8), *z = malloc(p * 8), *x = malloc(p * 8);
+	double *mean = malloc(p * 8), *floor = malloc(p * 8);
+	size_t i, k;
+
+	gsl_rng_set(rng, seed);
+	qwt_mixing(rng, p, A);
+	for (i = 0; i < p; i++) {
+		mean[i] = 100.0 * gsl_rng_uniform(rng);
+		floor[i] = 0.02 + 0.01 * (double)i;
+	}
+	qw_params_default(&par, p);
+	par.half_life = h;
+	par.floor = floor;
+	par.learn = QW_LEARN_ALL;
+	d = qw_detector_alloc(&par);
+	if (d == NULL)
+		return 1;
+	printf("# %zu %zu %.17g", p, n, h);
+	for (i = 0; i < p; i++)
+		printf(" %.17g", floor[i]);
+	printf("\n");
+	for (k = 0; k < n; k++) {
+		qwt_draw(rng, p, A, mean, z, x);
+		if (k > 10 && gsl_rng_uniform(rng) < 0.02)
+			x[gsl_rng_uniform_int(rng, p)] = NAN;
+		if (gsl_rng_uniform(rng) < 0.005)
+			x[0] += 25.0; /* outliers: large q, learned anyway */
+		qw_detector_add(d, (double)k, x, &res);
+		for (i = 0; i < p; i++)
+			printf("%.17g,", x[i]);
+		printf("%.17g,%u,%d\n", res.q, res.dof, res.scored);
+	}
+	qw_detector_free(d);
+	gsl_rng_free(rng);
+	free(A), free(z), free(x), free(mean), free(floor);
+	return 0;
+}
+
+int main(int argc, char **argv)
+{
+	gsl_set_error_handler_off();
+	if (argc == 2 && strcmp(argv[1], "limits") == 0)
+		return limits();
+	if (argc == 6 && strcmp(argv[1], "scores") == 0)
+		return scores(strtoul(argv[2], NULL, 10),
+			      strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
+			      strtoul(argv[5], NULL, 10));
+	fprintf(stderr, "usage: helper_core limits | scores P N H SEED\n");
+	return 2;
+}

@@ -1,0 +1,675 @@
+/* test_config.c: the configuration reader (src/io/config*.c).
+ *
+ * - The example of DESIGN.md "Configuration keys that outside checks use",
+ *   verbatim, from a string and from a file, gives the values it states.
+ * - Every error path, table-driven: the message must begin with the exact
+ *   "FILE:LINE: [section] key: " and the config must come back empty.
+ * - Defaults, duration units, endpoints (@ binds, > connects), list
+ *   continuation, floors, the fingerprint (against an independent FNV-1a). */
+#include <stdarg.h>
+#include <stddef.h>
+#include <setjmp.h>
+#include <stdint.h>
+#include <cmocka.h>
+
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "config.h"
+#include "qwtest.h"
+
+/* Values written in decimal in the file are parsed by strtod: exact up to
+ * one rounding, and unit products add one more. */
+#define TOL_PARSE 1e-15
+
+static const char design_example[] =
+	"[bus]\n"
+	"input   = >tcp://127.0.0.1:5601\n"
+	"alerts  = @tcp://127.0.0.1:5602\n"
+	"control = @tcp://127.0.0.1:5603\n"
+	"\n"
+	"[group rig]                          ; one section per group; topic = name\n"
+	"channels       = supply_t, return_t, flow, pump_amps   ; required\n"
+	"half_life      = 2000                ; readings; or 30s, 10min, 2h\n"
+	"alarms_per_day = 1                   ; the false-alarm rate to deliver\n"
+	"rate           = 10                  ; nominal readings per second\n"
+	"warmup         = 500                 ; readings before any alarm\n"
+	"persist        = 1/1                 ; k/m: k of the last m over the limit\n"
+	"floor          = 0.01, 0.01, 0.1, 0.05   ; per-channel noise floor (std dev, channel units)\n"
+	"\n"
+	"[state]\n"
+	"dir   = /var/lib/quadwatch           ; checkpoints; none kept when absent\n"
+	"every = 10s                          ; checkpoint interval\n";
+
+/* Loads text as "t.ini"; fails the test with the message if it errs. */
+static void load_ok(const char *text, struct qw_config *cfg)
+{
+	char err[QW_CONFIG_ERR_MAX] = "";
+	int rc = qw_config_load_string(text, "t.ini", cfg, err, sizeof err);
+
+	if (rc != 0)
+		fail_msg("unexpected error %d: %s", rc, err);
+}
+
+static void check_design(const struct qw_config *c)
+{
+	static const char *const names[] = {"supply_t", "return_t", "flow",
+					    "pump_amps"};
+	static const double floors[] = {0.01, 0.01, 0.1, 0.05};
+	const struct qw_group_conf *g;
+	size_t i;
+
+	assert_int_equal(c->ninputs, 1);
+	assert_string_equal(c->inputs[0].addr, "tcp://127.0.0.1:5601");
+	assert_int_equal(c->inputs[0].bind, 0);
+	assert_string_equal(c->alerts.addr, "tcp://127.0.0.1:5602");
+	assert_int_equal(c->alerts.bind, 1);
+	assert_string_equal(c->control.addr, "tcp://127.0.0.1:5603");
+	assert_int_equal(c->control.bind, 1);
+	assert_string_equal(c->state_dir, "/var/lib/quadwatch");
+	assert_true(c->state_every == 10.0);
+	assert_int_equal(c->ngroups, 1);
+	g = &c->groups[0];
+	assert_string_equal(g->name, "rig");
+	assert_int_equal(g->line, 6);
+	assert_int_equal(g->half_life_line, 8);
+	assert_int_equal(g->p, 4);
+	for (i = 0; i < 4; i++) {
+		assert_string_equal(g->channels[i], names[i]);
+		assert_true(qwt_reldiff(g->floor[i], floors[i], 0) <= TOL_PARSE);
+	}
+	assert_int_equal(g->params.p, 4);
+	assert_true(g->params.half_life == 2000.0);
+	assert_int_equal(g->params.time_based, 0);
+	assert_true(g->params.alarms_per_day == 1.0);
+	assert_true(g->params.rate == 10.0);
+	assert_int_equal(g->params.warmup, 500);
+	assert_int_equal(g->params.persist_k, 1);
+	assert_int_equal(g->params.persist_m, 1);
+	assert_ptr_equal(g->params.floor, g->floor);
+	assert_ptr_equal(qw_config_group(c, "rig"), g);
+	assert_null(qw_config_group(c, "ri"));
+}
+
+static void test_design_example_string(void **state)
+{
+	struct qw_config c;
+
+	(void)state;
+	load_ok(design_example, &c);
+	assert_string_equal(c.path, "t.ini");
+	check_design(&c);
+	qw_config_free(&c);
+	qw_config_free(&c); /* a freed config is empty: freeing again is safe */
+}
+
+/* Writes text (len bytes) to a new temporary file; returns its name. */
+static char *temp_file(const char *text, size_t len)
+{
+	static char name[64];
+	int fd;
+
+	snprintf(name, sizeof name, "/tmp/qw_test_config_XXXXXX");
+	fd = mkstemp(name);
+	assert_true(fd >= 0);
+	assert_int_equal(write(fd, text, len), (ssize_t)len);
+	close(fd);
+	return name;
+}
+
+static void test_design_example_file(void **state)
+{
+	struct qw_config c;
+	char err[QW_CONFIG_ERR_MAX];
+	char *name = temp_file(design_example, strlen(design_example));
+
+	(void)state;
+	assert_int_equal(qw_config_load(name, &c, err, sizeof err), 0);
+	assert_string_equal(c.path, name);
+	check_design(&c);
+	qw_config_free(&c);
+	unlink(name);
+}
+
+static void test_defaults(void **state)
+{
+	struct qw_config c;
+	struct qw_params def;
+	const struct qw_params *p;
+
+	(void)state;
+	load_ok("[group g]\nchannels = a, b, c\n", &c);
+	assert_int_equal(c.ninputs, 1);
+	assert_string_equal(c.inputs[0].addr, "tcp://127.0.0.1:5601");
+	assert_int_equal(c.inputs[0].bind, 0);
+	assert_string_equal(c.alerts.addr, "tcp://127.0.0.1:5602");
+	assert_int_equal(c.alerts.bind, 1);
+	assert_string_equal(c.control.addr, "tcp://127.0.0.1:5603");
+	assert_int_equal(c.control.bind, 1);
+	assert_true(c.stats_every == 10.0);
+	assert_int_equal(c.max_frame, 4u << 20);
+	assert_string_equal(c.state_dir, "");
+	assert_true(c.state_every == 10.0);
+	assert_string_equal(c.server_key, "");
+	assert_string_equal(c.client_keys, "");
+	qw_params_default(&def, 3);
+	p = &c.groups[0].params;
+	assert_int_equal(p->p, 3);
+	assert_true(p->half_life == def.half_life);
+	assert_int_equal(p->time_based, 0);
+	assert_true(p->rate == def.rate);
+	assert_true(p->alarms_per_day == def.alarms_per_day);
+	assert_int_equal(p->warmup, def.warmup);
+	assert_int_equal(p->persist_k, def.persist_k);
+	assert_int_equal(p->persist_m, def.persist_m);
+	assert_int_equal(p->clear_n, def.clear_n);
+	assert_int_equal(p->learn, def.learn);
+	assert_int_equal(p->relearn_after, 0);
+	assert_int_equal(p->correct, 1);
+	assert_true(c.groups[0].floor[0] == 0 && c.groups[0].floor[2] == 0);
+	assert_int_equal(c.groups[0].half_life_line, 0);
+	qw_config_free(&c);
+}
+
+/* The half_life of "[group g]\nchannels = a\nhalf_life = TEXT\n". */
+static void half_life_is(const char *text, double want, int time_based)
+{
+	char buf[256];
+	struct qw_config c;
+
+	snprintf(buf, sizeof buf, "[group g]\nchannels = a\nhalf_life = %s\n",
+		 text);
+	load_ok(buf, &c);
+	if (qwt_reldiff(c.groups[0].params.half_life, want, 0) > TOL_PARSE ||
+	    c.groups[0].params.time_based != time_based)
+		fail_msg("half_life = %s: got %.17g (time_based %d), want "
+			 "%.17g (%d)", text, c.groups[0].params.half_life,
+			 c.groups[0].params.time_based, want, time_based);
+	qw_config_free(&c);
+}
+
+static void test_durations(void **state)
+{
+	struct qw_config c;
+	const struct qw_params *p;
+
+	(void)state;
+	half_life_is("2385", 2385.0, 0);
+	half_life_is("2.385e3", 2385.0, 0);
+	half_life_is("30s", 30.0, 1);
+	half_life_is("2.385 s", 2.385, 1);
+	half_life_is("10min", 600.0, 1);
+	half_life_is("2h", 7200.0, 1);
+	half_life_is("1.5d", 129600.0, 1);
+	half_life_is("250ms", 0.25, 1);
+	load_ok("[bus]\nstats_every = 2min\n[state]\nevery = 1.5h\n"
+		"[group g]\nchannels = a\nrate = 2.385\nwarmup = 2.5min\n"
+		"relearn_after = 1h\n", &c);
+	assert_true(c.stats_every == 120.0);
+	assert_true(c.state_every == 5400.0);
+	p = &c.groups[0].params;
+	/* 150 s at 2.385/s = 357.75 readings, rounded up to cover 150 s */
+	assert_int_equal(p->warmup, 358);
+	assert_int_equal(p->relearn_after, 8586);
+	qw_config_free(&c);
+	load_ok("[bus]\nstats_every = 0\n[group g]\nchannels = a\n"
+		"warmup = 0\nrelearn_after = 2385\n", &c);
+	assert_true(c.stats_every == 0.0); /* 0 = no stats */
+	p = &c.groups[0].params;
+	{
+		struct qw_params def;
+
+		qw_params_default(&def, 1);
+		assert_int_equal(p->warmup, def.warmup); /* 0: the default */
+	}
+	assert_int_equal(p->relearn_after, 2385);
+	qw_config_free(&c);
+}
+
+static void test_endpoints(void **state)
+{
+	struct qw_config c;
+
+	(void)state;
+	load_ok("[bus]\n"
+		"input = @tcp://*:5601, >ipc:///tmp/qw.in ,inproc://bare\n"
+		"alerts = >tcp://relay.example:5700\n"
+		"control = none\n"
+		"[group g]\nchannels = a\n", &c);
+	assert_int_equal(c.ninputs, 3);
+	assert_string_equal(c.inputs[0].addr, "tcp://*:5601");
+	assert_int_equal(c.inputs[0].bind, 1);
+	assert_string_equal(c.inputs[1].addr, "ipc:///tmp/qw.in");
+	assert_int_equal(c.inputs[1].bind, 0);
+	assert_string_equal(c.inputs[2].addr, "inproc://bare");
+	assert_int_equal(c.inputs[2].bind, 0); /* inputs connect by default */
+	assert_string_equal(c.alerts.addr, "tcp://relay.example:5700");
+	assert_int_equal(c.alerts.bind, 0);
+	assert_string_equal(c.control.addr, ""); /* no control socket */
+	qw_config_free(&c);
+	load_ok("[bus]\nalerts = tcp://127.0.0.1:6602\ncontrol =\n"
+		"[group g]\nchannels = a\n", &c);
+	assert_int_equal(c.alerts.bind, 1); /* alerts bind by default */
+	assert_string_equal(c.control.addr, "");
+	qw_config_free(&c);
+	load_ok("[bus]\ncontrol = >ipc:///run/qw.ctl\nmax_frame = 64KiB\n"
+		"[group g]\nchannels = a\n", &c);
+	assert_string_equal(c.control.addr, "ipc:///run/qw.ctl");
+	assert_int_equal(c.control.bind, 0);
+	assert_int_equal(c.max_frame, 65536);
+	qw_config_free(&c);
+}
+
+static void test_group_keys(void **state)
+{
+	struct qw_config c;
+	const struct qw_group_conf *g;
+
+	(void)state;
+	load_ok("[group pump_skid.2-a]\n"
+		"channels = speed, flow, dp\n"
+		"floor = 2.385\n"
+		"persist = 3/5\nclear = 17\nlearn = clip\ncorrect = no\n"
+		"mode = plain\nalarms_per_day = 0.73\n"
+		"[group b]\nchannels = x:1, y/2\nfloor = 0, 0.5\nlearn = ALL\n",
+		&c);
+	assert_int_equal(c.ngroups, 2);
+	g = &c.groups[0];
+	assert_string_equal(g->name, "pump_skid.2-a");
+	assert_true(g->floor[0] == 2.385 && g->floor[1] == 2.385 &&
+		    g->floor[2] == 2.385);
+	assert_int_equal(g->params.persist_k, 3);
+	assert_int_equal(g->params.persist_m, 5);
+	assert_int_equal(g->params.clear_n, 17);
+	assert_int_equal(g->params.learn, QW_LEARN_CLIP);
+	assert_int_equal(g->params.correct, 0);
+	assert_true(g->params.alarms_per_day == 0.73);
+	g = &c.groups[1];
+	assert_int_equal(g->line, 10);
+	assert_string_equal(g->channels[0], "x:1");
+	assert_string_equal(g->channels[1], "y/2");
+	assert_true(g->floor[0] == 0 && g->floor[1] == 0.5);
+	assert_int_equal(g->params.learn, QW_LEARN_ALL);
+	qw_config_free(&c);
+}
+
+/* Long lists continue on indented lines; indented keys stay keys; CRLF,
+ * a UTF-8 byte order mark, '#' comments and ':' separators are read. */
+static void test_layout(void **state)
+{
+	struct qw_config c;
+	const struct qw_group_conf *g;
+
+	(void)state;
+	load_ok("\xEF\xBB\xBF# plant\r\n"
+		"[bus]\r\n"
+		"input = >tcp://10.0.0.1:5601,\r\n"
+		"        >tcp://10.0.0.2:5601\r\n"
+		"  [ group g ]  ; indented header\r\n"
+		"  channels = a, b\r\n"
+		"      c\r\n"
+		"   ; a comment between continuation lines\r\n"
+		"      d,\r\n"
+		"      e\r\n"
+		"  floor = 0.1, 0.2,\r\n"
+		"    0.3, 0.4, 0.5\r\n"
+		"rate: 2.385\r\n", &c);
+	assert_int_equal(c.ninputs, 2);
+	assert_string_equal(c.inputs[1].addr, "tcp://10.0.0.2:5601");
+	g = &c.groups[0];
+	assert_string_equal(g->name, "g");
+	assert_int_equal(g->line, 5);
+	assert_int_equal(g->p, 5);
+	assert_string_equal(g->channels[2], "c");
+	assert_string_equal(g->channels[4], "e");
+	assert_true(g->floor[4] == 0.5);
+	assert_true(g->params.rate == 2.385);
+	qw_config_free(&c);
+}
+
+/* An independent FNV-1a 64 (offset basis and prime from the FNV
+ * reference) over the bytes the fingerprint is defined on. */
+static uint64_t fnv1a(uint64_t h, const void *data, size_t n)
+{
+	const unsigned char *s = data;
+	size_t i;
+
+	for (i = 0; i < n; i++) {
+		h ^= s[i];
+		h *= 0x100000001b3ULL;
+	}
+	return h;
+}
+
+static void test_fingerprint(void **state)
+{
+	static const unsigned char p3[8] = {3, 0, 0, 0, 0, 0, 0, 0};
+	struct qw_config c;
+	uint64_t want, f[4];
+
+	(void)state;
+	/* published test vector of FNV-1a 64: "a" -> af63dc4c8601ec8c */
+	assert_true(fnv1a(0xcbf29ce484222325ULL, "a", 1) ==
+		    0xaf63dc4c8601ec8cULL);
+	want = fnv1a(0xcbf29ce484222325ULL, p3, 8);
+	want = fnv1a(want, "ab\0c\0d", 7);
+	load_ok("[group g1]\nchannels = ab, c, d\n"
+		"[group g2]\nchannels = a, bc, d\nfloor = 2.385\nrate = 7\n"
+		"[group g3]\nchannels = ab, c, d\nhalf_life = 30s\n"
+		"[group g4]\nchannels = c, ab, d\n", &c);
+	for (size_t i = 0; i < 4; i++)
+		f[i] = qw_config_fingerprint(&c.groups[i]);
+	assert_true(f[0] == want);
+	assert_true(f[0] != f[1]); /* name boundaries count */
+	assert_true(f[0] == f[2]); /* settings do not */
+	assert_true(f[0] != f[3]); /* order does */
+	qw_config_free(&c);
+}
+
+/* One error case: text, and the exact start of the message. */
+struct err_case {
+	const char *text;
+	const char *want;
+};
+
+#define G "[group a]\nchannels = x, y\n" /* lines 1-2 */
+
+static const struct err_case err_cases[] = {
+	{"[bux]\n", "t.ini:1: [bux]: unknown section; expected [bus]"},
+	{"[bus]\n[state]\n[bus]\n" G,
+	 "t.ini:3: [bus]: expected each section once; first on line 1"},
+	{"[bus]\ninputs = >tcp://a:1\n" G,
+	 "t.ini:2: [bus] inputs: unknown key; expected one of input, alerts, "
+	 "control, stats_every, max_frame"},
+	{"rate = 10\n" G, "t.ini:1: rate: expected a [section] header"},
+	{G "halflife = 3\n", "t.ini:3: [group a] halflife: unknown key; "
+	 "expected one of channels, half_life,"},
+	{G "rate = 10\nrate = 20\n", "t.ini:4: [group a] rate: expected each "
+	 "key once per section; first set on line 3"},
+	{G "[group b]\nchannels = z\n[group a]\nchannels = z\n",
+	 "t.ini:5: [group a]: expected each group once; first on line 1"},
+	{"[group a b]\nchannels = x\n", "t.ini:1: [group a b]: expected "
+	 "[group NAME], NAME of 1 to 63 characters"},
+	{"[group a/b]\nchannels = x\n", "t.ini:1: [group a/b]: expected"},
+	{"[group]\nchannels = x\n", "t.ini:1: [group]: expected [group NAME]"},
+	{"[group a]\nrate = 10\n[group b]\nchannels = x\n",
+	 "t.ini:1: [group a] channels: required key missing"},
+	{"[bus]\nalerts = @tcp://127.0.0.1:7\n",
+	 "t.ini:2: expected at least one [group NAME] section"},
+	{"", "t.ini:1: expected at least one [group NAME] section"},
+	{"[bus]\n[state]\n[security]\n", "t.ini:3: expected at least one"},
+	{G "rate = ten\n", "t.ini:3: [group a] rate: expected readings per "
+	 "second, a number > 0; got 'ten'"},
+	{G "rate = 0\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = -2.385\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = nan\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = inf\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = 1e999\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = 0x10\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "rate = 10 # Hz\n", "t.ini:3: [group a] rate: expected readings"},
+	{G "alarms_per_day = 0\n", "t.ini:3: [group a] alarms_per_day: "
+	 "expected raised alarms per day, a number > 0"},
+	{G "alarms_per_day = 1e9\n", "t.ini:3: [group a] alarms_per_day: "
+	 "expected fewer alarms per day than 1 readings/s with persist 1/1"},
+	{G "rate = 1e-6\n", "t.ini:1: [group a] alarms_per_day: expected "
+	 "fewer alarms per day"},
+	{G "half_life = 0\n", "t.ini:3: [group a] half_life: expected a "
+	 "number of readings > 0, or a duration"},
+	{G "half_life = -5\n", "t.ini:3: [group a] half_life: expected"},
+	{G "half_life = 10 m\n", "t.ini:3: [group a] half_life: expected"},
+	{G "half_life = 2 weeks\n", "t.ini:3: [group a] half_life: expected"},
+	{G "half_life = 1e400s\n", "t.ini:3: [group a] half_life: expected"},
+	{G "half_life = 1e304d\n", "t.ini:3: [group a] half_life: expected"},
+	{G "floor = 1, 2, 3\nrate = 5\n", "t.ini:3: [group a] floor: "
+	 "expected 1 value or 2 (one per channel), got 3"},
+	{G "floor = 0.1, -0.2\n", "t.ini:3: [group a] floor: expected a "
+	 "noise floor >= 0 (std dev, channel units; 0 = auto), got '-0.2' "
+	 "(item 2)"},
+	{G "floor = 0.1, nan\n", "t.ini:3: [group a] floor: expected a noise"},
+	{G "floor = 0.1,\n", "t.ini:3: [group a] floor: expected a noise "
+	 "floor >= 0 (std dev, channel units; 0 = auto), got '' (item 2)"},
+	{G "floor =\n", "t.ini:3: [group a] floor: expected 1 to 4096"},
+	{G "persist = 3/2\n", "t.ini:3: [group a] persist: expected k/m with "
+	 "1 <= k <= m <= 64"},
+	{G "persist = 0/1\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "persist = 1/65\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "persist = 1-1\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "persist = 1/\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "persist = /2\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "persist = 1/1/1\n", "t.ini:3: [group a] persist: expected k/m"},
+	{G "clear = 0\n", "t.ini:3: [group a] clear: expected a whole number "
+	 "of readings from 1 to"},
+	{G "clear = 4294967296\n", "t.ini:3: [group a] clear: expected"},
+	{G "clear = 2.5\n", "t.ini:3: [group a] clear: expected"},
+	{G "learn = maybe\n", "t.ini:3: [group a] learn: expected skip, clip "
+	 "or all; got 'maybe'"},
+	{G "mode = mewma\n", "t.ini:3: [group a] mode: expected plain: mewma "
+	 "is not supported in this version"},
+	{G "mode = fancy\n", "t.ini:3: [group a] mode: expected plain; got"},
+	{G "correct = maybe\n", "t.ini:3: [group a] correct: expected yes or "
+	 "no"},
+	{G "warmup = -1\n", "t.ini:3: [group a] warmup: expected a whole "
+	 "number of readings, or a duration"},
+	{G "warmup = 10x\n", "t.ini:3: [group a] warmup: expected a whole"},
+	{G "warmup = 2.385\n", "t.ini:3: [group a] warmup: expected a whole"},
+	{G "warmup = 1e304d\n", "t.ini:3: [group a] warmup: expected a whole"},
+	{G "warmup = 1e12d\nrate = 1000\n",
+	 "t.ini:3: [group a] warmup: expected at most 2^53 readings"},
+	{G "relearn_after = 1e12d\nrate = 1000\n",
+	 "t.ini:3: [group a] relearn_after: expected at most 2^53 readings"},
+	{G "relearn_after = soon\n", "t.ini:3: [group a] relearn_after: "
+	 "expected a whole number"},
+	{"[group a]\nchannels = p, q, p\n", "t.ini:2: [group a] channels: "
+	 "expected each channel once; 'p' is listed twice"},
+	{"[group a]\nchannels = p,, q\n", "t.ini:2: [group a] channels: "
+	 "expected a channel name, got an empty item (item 2)"},
+	{"[group a]\nchannels = p,\n", "t.ini:2: [group a] channels: "
+	 "expected a channel name, got an empty item (item 2)"},
+	{"[group a]\nchannels = p, sup ply\n", "t.ini:2: [group a] channels: "
+	 "expected a channel name of 1 to 63 printable characters"},
+	{"[group a]\nchannels = p, \"q\"\n", "t.ini:2: [group a] channels: "
+	 "expected a channel name of 1"},
+	{"[group a]\nchannels = "
+	 "c123456789012345678901234567890123456789012345678901234567890123\n",
+	 "t.ini:2: [group a] channels: expected a channel name of 1 to 63"},
+	{"[group a]\nchannels =\n", "t.ini:2: [group a] channels: expected a "
+	 "comma-separated list of channel names"},
+	{"[bus]\ninput = tcp//x\n" G, "t.ini:2: [bus] input: expected an "
+	 "endpoint such as @tcp://127.0.0.1:5602"},
+	{"[bus]\ninput = >\n" G, "t.ini:2: [bus] input: expected an endpoint"},
+	{"[bus]\ninput = @tcp://\n" G, "t.ini:2: [bus] input: expected an"},
+	{"[bus]\ninput =\n" G, "t.ini:2: [bus] input: expected at least one "
+	 "endpoint"},
+	{"[bus]\ninput = inproc://a, >inproc://a\n" G, "t.ini:2: [bus] input: "
+	 "expected each endpoint once; 'inproc://a' is listed twice"},
+	{"[bus]\ninput = inproc://a,\n" G, "t.ini:2: [bus] input: expected"},
+	{"[bus]\nalerts = @\n" G, "t.ini:2: [bus] alerts: expected an "
+	 "endpoint"},
+	{"[bus]\nalerts = @tcp://a b:1\n" G, "t.ini:2: [bus] alerts: expected "
+	 "an endpoint such as @tcp://127.0.0.1:5602 or >ipc:///run/qw (no "
+	 "blanks"},
+	{"[bus]\ncontrol = 5603\n" G, "t.ini:2: [bus] control: expected an"},
+	{"[bus]\nmax_frame = 10\n" G, "t.ini:2: [bus] max_frame: expected a "
+	 "size in bytes from 64 to 1073741824"},
+	{"[bus]\nmax_frame = 2048MiB\n" G, "t.ini:2: [bus] max_frame: "
+	 "expected a size"},
+	{"[bus]\nmax_frame = 2GiB\n" G, "t.ini:2: [bus] max_frame: expected"},
+	{"[bus]\nmax_frame = -4096\n" G, "t.ini:2: [bus] max_frame: expected"},
+	{"[bus]\nstats_every = -1s\n" G, "t.ini:2: [bus] stats_every: "
+	 "expected a duration >= 0 such as 30s"},
+	{"[bus]\nstats_every = 10 parsec\n" G, "t.ini:2: [bus] stats_every: "
+	 "expected a duration"},
+	{"[state]\nevery = 0\n" G, "t.ini:2: [state] every: expected a "
+	 "duration > 0"},
+	{"[state]\ndir =\n" G, "t.ini:2: [state] dir: expected a path, got "
+	 "nothing"},
+	{"[security]\nserver_key =\n" G, "t.ini:2: [security] server_key: "
+	 "expected a path"},
+	{"[security]\nclient_keys =\n" G, "t.ini:2: [security] client_keys: "
+	 "expected a path"},
+	{G "rate = 10\n  20\n", "t.ini:3: [group a] rate: expected one value "
+	 "on one line"},
+	{G "garbage\n", "t.ini:3: expected 'key = value', a [section] header "
+	 "or a comment"},
+	{"[group a]\n  x\nchannels = y\n", "t.ini:2: expected 'key = value'"},
+	{"[bus\n" G, "t.ini:1: expected ']' to close the section header"},
+	{"[bus] x\n" G, "t.ini:1: expected only a comment after ']'"},
+	{"[bux]\nfoo = 1\n" G, "t.ini:1: [bux]: unknown section"},
+	/* the earliest line wins, whichever part found it */
+	{G "rate = abc\ngarbage\n", "t.ini:3: [group a] rate: expected"},
+	{"[group a]\ngarbage\nchannels = x\nrate = abc\n",
+	 "t.ini:2: expected 'key = value'"},
+	{"[group a]\nchannels = x\nfloor = 1, 2\ngarbage\n",
+	 "t.ini:3: [group a] floor: expected 1 value (one channel), got 2"},
+};
+
+static void test_errors(void **state)
+{
+	char err[QW_CONFIG_ERR_MAX];
+	struct qw_config c;
+	size_t i;
+	int rc;
+
+	(void)state;
+	for (i = 0; i < sizeof err_cases / sizeof err_cases[0]; i++) {
+		const struct err_case *e = &err_cases[i];
+
+		err[0] = '\0';
+		rc = qw_config_load_string(e->text, "t.ini", &c, err,
+					   sizeof err);
+		if (rc != QW_EFORMAT ||
+		    strncmp(err, e->want, strlen(e->want)) != 0)
+			fail_msg("case %zu: rc %d\n  got:  %s\n  want: %s...",
+				 i, rc, err, e->want);
+		assert_int_equal(c.ngroups, 0); /* empty after an error */
+		assert_null(c.groups);
+		qw_config_free(&c);
+	}
+}
+
+/* Errors that need text too long for the table: a line past inih's buffer,
+ * too many groups, channels and inputs. */
+static void test_error_limits(void **state)
+{
+	size_t cap = 300000, off = 0, i;
+	char *t = malloc(cap), err[QW_CONFIG_ERR_MAX];
+	struct qw_config c;
+
+	(void)state;
+	assert_non_null(t);
+	off = (size_t)snprintf(t, cap, "[group a]\nchannels = x\nfloor = 0");
+	for (i = 0; i < 70; i++)
+		off += (size_t)snprintf(t + off, cap - off, ", 0");
+	snprintf(t + off, cap - off, "\n");
+	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
+					       sizeof err), QW_EFORMAT);
+	assert_string_equal(err, "t.ini:3: expected lines of at most 198 "
+				 "bytes; continue a long list on indented "
+				 "lines");
+	for (off = 0, i = 0; i <= QW_CONFIG_MAX_GROUPS; i++)
+		off += (size_t)snprintf(t + off, cap - off,
+					"[group g%zu]\nchannels = x\n", i);
+	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
+					       sizeof err), QW_EFORMAT);
+	assert_string_equal(err, "t.ini:513: [group g256]: expected at most "
+				 "256 groups");
+	off = (size_t)snprintf(t, cap, "[group a]\nchannels = c0");
+	for (i = 1; i <= QW_MAX_P; i++)
+		off += (size_t)snprintf(t + off, cap - off, "%s c%zu",
+					i % 10 == 0 ? "\n  " : ",", i);
+	snprintf(t + off, cap - off, "\n");
+	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
+					       sizeof err), QW_EFORMAT);
+	assert_string_equal(err, "t.ini:2: [group a] channels: expected at "
+				 "most 4096 channels, got 4097");
+	off = (size_t)snprintf(t, cap, "[bus]\ninput = inproc://i0");
+	for (i = 1; i <= QW_CONFIG_MAX_INPUTS; i++)
+		off += (size_t)snprintf(t + off, cap - off, ",\n  inproc://i%zu",
+					i);
+	snprintf(t + off, cap - off, "\n" G);
+	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
+					       sizeof err), QW_EFORMAT);
+	assert_string_equal(err, "t.ini:2: [bus] input: expected at most 16 "
+				 "endpoints, got 17");
+	free(t);
+}
+
+/* The largest group: QW_MAX_P channels over continuation lines. */
+static void test_max_channels(void **state)
+{
+	size_t cap = 300000, off, i;
+	char *t = malloc(cap);
+	struct qw_config c;
+
+	(void)state;
+	assert_non_null(t);
+	off = (size_t)snprintf(t, cap, "[group a]\nchannels = c0");
+	for (i = 1; i < QW_MAX_P; i++)
+		off += (size_t)snprintf(t + off, cap - off, "%s c%zu",
+					i % 10 == 0 ? "\n  " : ",", i);
+	snprintf(t + off, cap - off, "\nhalf_life = 1e6\n");
+	load_ok(t, &c);
+	assert_int_equal(c.groups[0].p, QW_MAX_P);
+	assert_string_equal(c.groups[0].channels[QW_MAX_P - 1], "c4095");
+	qw_config_free(&c);
+	free(t);
+}
+
+static void test_file_errors(void **state)
+{
+	static const char nul[] = "[group a]\nchannels = x\nrate = 1\0 0\n";
+	char err[QW_CONFIG_ERR_MAX], longpath[2048];
+	struct qw_config c;
+	char *name;
+
+	(void)state;
+	assert_int_equal(qw_config_load("/nonexistent/qw.ini", &c, err,
+					sizeof err), QW_EIO);
+	assert_string_equal(err, "/nonexistent/qw.ini: cannot open: No such "
+				 "file or directory");
+	assert_int_equal(c.ngroups, 0);
+	assert_int_equal(qw_config_load("/tmp", &c, err, sizeof err), QW_EIO);
+	assert_string_equal(err, "/tmp: cannot read: Is a directory");
+	name = temp_file(nul, sizeof nul - 1);
+	assert_int_equal(qw_config_load(name, &c, err, sizeof err),
+			 QW_EFORMAT);
+	assert_non_null(strstr(err, ":3: expected text, found a NUL byte"));
+	unlink(name);
+	memset(longpath, 'a', sizeof longpath - 1);
+	longpath[sizeof longpath - 1] = '\0';
+	assert_int_equal(qw_config_load(longpath, &c, err, sizeof err),
+			 QW_EIO);
+	assert_non_null(strstr(err, "path longer than 1023 bytes"));
+	/* no message buffer, or a tiny one: still the code, no overflow */
+	assert_int_equal(qw_config_load_string("[bux]\n", "t.ini", &c, NULL,
+					       0), QW_EFORMAT);
+	assert_int_equal(qw_config_load("/nonexistent/qw.ini", &c, NULL, 0),
+			 QW_EIO);
+	err[12] = 'Z';
+	assert_int_equal(qw_config_load_string("[bux]\n", "t.ini", &c, err,
+					       8), QW_EFORMAT);
+	assert_string_equal(err, "t.ini:1");
+	assert_int_equal(err[12], 'Z');
+}
+
+int main(void)
+{
+	const struct CMUnitTest tests[] = {
+		cmocka_unit_test(test_design_example_string),
+		cmocka_unit_test(test_design_example_file),
+		cmocka_unit_test(test_defaults),
+		cmocka_unit_test(test_durations),
+		cmocka_unit_test(test_endpoints),
+		cmocka_unit_test(test_group_keys),
+		cmocka_unit_test(test_layout),
+		cmocka_unit_test(test_fingerprint),
+		cmocka_unit_test(test_errors),
+		cmocka_unit_test(test_error_limits),
+		cmocka_unit_test(test_max_channels),
+		cmocka_unit_test(test_file_errors),
+	};
+
+	return cmocka_run_group_tests(tests, NULL, NULL);
+}

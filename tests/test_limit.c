@@ -1,0 +1,181 @@
+/* test_limit.c: limits (issue 2, test 3, first half) and alarm state.
+ * Published reference: NIST/SEMATECH e-Handbook of Statistical Methods,
+ * section 1.3.6.7.4, "Critical Values of the Chi-Square Distribution",
+ * nu = 1..100, alpha = 0.10, 0.05, 0.025, 0.01, 0.001, printed to three
+ * decimals (tests/data/chi-square-upper-critical-values.csv).  The scipy
+ * comparison to 1e-9 is tests/t_ref_scipy.sh. */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cmocka.h>
+#include <gsl/gsl_errno.h>
+
+#include "quadwatch.h"
+#include "qwtest.h"
+
+/* Printed to 3 decimals.  A correctly rounded entry is within half a unit
+ * (0.0005) of the true value, but the table has entries one unit off
+ * (nu 8, alpha 0.001 is printed 26.125; the true value is 26.12448, as
+ * scipy.stats.chi2.isf also gives); its source notes agreement to within
+ * 0.001, one printed unit, and that is the tolerance.  How many entries
+ * agree to half a unit is printed. */
+#define TOL_PRINTED (0.001 + 1e-9)
+#define HALF_UNIT (0.0005 + 1e-9)
+#define NIST_TABLE "tests/data/chi-square-upper-critical-values.csv"
+
+static void chisq_vs_nist_table(void **st)
+{
+	const double alphas[5] = {0.10, 0.05, 0.025, 0.01, 0.001};
+	FILE *f = fopen(NIST_TABLE, "r");
+	char line[256];
+	int rows = 0, checked = 0, half = 0;
+	double worst = 0;
+
+	(void)st;
+	assert_non_null(f);
+	assert_non_null(fgets(line, sizeof line, f)); /* header */
+	while (fgets(line, sizeof line, f) != NULL) {
+		unsigned nu;
+		double v[5];
+
+		assert_int_equal(sscanf(line, "%u,%lf,%lf,%lf,%lf,%lf", &nu,
+					&v[0], &v[1], &v[2], &v[3], &v[4]), 6);
+		for (int i = 0; i < 5; i++) {
+			double got = qw_limit_chisq(alphas[i], nu);
+
+			worst = fmax(worst, fabs(got - v[i]));
+			half += fabs(got - v[i]) <= HALF_UNIT;
+			if (fabs(got - v[i]) > TOL_PRINTED)
+				print_message("nu %u alpha %g: %.6f vs table "
+					      "%.3f\n", nu, alphas[i], got, v[i]);
+			assert_true(fabs(got - v[i]) <= TOL_PRINTED);
+			checked++;
+		}
+		rows++;
+	}
+	fclose(f);
+	print_message("# NIST/SEMATECH table: %d values, nu 1..%d, worst "
+		      "|diff| %.2g, %d within half a printed unit\n", checked,
+		      rows, worst, half);
+	assert_int_equal(rows, 100);
+}
+
+/* The checker can fail: a value off by one printed unit is caught. */
+static void nist_check_can_fail(void **st)
+{
+	(void)st;
+	/* nu = 4, alpha = 0.05 is printed as 9.488. */
+	assert_true(fabs(qw_limit_chisq(0.05, 4) - 9.488) <= TOL_PRINTED);
+	assert_false(fabs(qw_limit_chisq(0.05, 4) - 9.490) <= TOL_PRINTED);
+	assert_false(fabs(qw_limit_chisq(0.05, 5) - 9.488) <= TOL_PRINTED);
+}
+
+/* With an infinite effective size the corrected limit is chi-square; it
+ * decreases towards it as nu grows; +Inf when nu is too small. */
+static void corrected_limit_shape(void **st)
+{
+	double prev = INFINITY, chi = qw_limit_chisq(1e-4, 6);
+
+	(void)st;
+	assert_true(qwt_reldiff(qw_limit_corrected(1e-4, 6, INFINITY, 1.0),
+				chi, 0) < 1e-12);
+	assert_true(isinf(qw_limit_corrected(1e-4, 6, 5.9, 1.0)));
+	for (double nu = 8; nu < 1e6; nu *= 1.7) {
+		double l = qw_limit_corrected(1e-4, 6, nu, 1.0);
+
+		assert_true(l < prev && l > chi);
+		prev = l;
+	}
+	assert_true(qwt_reldiff(qw_limit_pvalue(
+			qw_limit_corrected(2.385e-5, 6, 812.5, 1.1), 6, 812.5,
+			1.1), 2.385e-5, 0) < 1e-8);
+}
+
+static void alpha_argument_errors(void **st)
+{
+	double a;
+
+	(void)st;
+	assert_int_equal(qw_limit_alpha(0, 10, 1, 1, &a), QW_EINVAL);
+	assert_int_equal(qw_limit_alpha(1, 0, 1, 1, &a), QW_EINVAL);
+	assert_int_equal(qw_limit_alpha(1, 10, 3, 2, &a), QW_EINVAL);
+	assert_int_equal(qw_limit_alpha(1, 10, 1, 65, &a), QW_EINVAL);
+	assert_int_equal(qw_limit_alpha(NAN, 10, 1, 1, &a), QW_EINVAL);
+	/* More alarms than readings cannot be delivered. */
+	assert_int_equal(qw_limit_alpha(1e9, 1, 1, 1, &a), QW_EINVAL);
+	assert_int_equal(qw_limit_alpha(2.385, 10, 2, 5, &a), 0);
+}
+
+/* Alarm state against a simple reference model of k-of-m over random
+ * sequences (SQLite's bitvec way): a plain array window. */
+static void alarm_vs_reference(void **st)
+{
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+
+	(void)st;
+	gsl_rng_set(rng, 11);
+	for (int cfg = 0; cfg < 40; cfg++) {
+		unsigned m = 1 + (unsigned)gsl_rng_uniform_int(rng, 64);
+		unsigned k = 1 + (unsigned)gsl_rng_uniform_int(rng, m);
+		unsigned clear = 1 + (unsigned)gsl_rng_uniform_int(rng, 6);
+		double pr = gsl_rng_uniform(rng) * 0.6;
+		struct qw_alarm a;
+		int hist[64] = {0}, in = 0, under = 0;
+
+		assert_int_equal(qw_alarm_init(&a, k, m, clear), 0);
+		for (int t = 0; t < 3000; t++) {
+			int over = gsl_rng_uniform(rng) < pr, ev = 0;
+			unsigned cnt = 0;
+
+			memmove(hist + 1, hist, 63 * sizeof(int));
+			hist[0] = over;
+			for (unsigned i = 0; i < m; i++)
+				cnt += (unsigned)hist[i];
+			if (!in && cnt >= k) {
+				in = 1, under = 0, ev = QW_EVENT_RAISE;
+			} else if (in) {
+				under = over ? 0 : under + 1;
+				if (under >= (int)clear) {
+					in = 0, ev = QW_EVENT_CLEAR;
+					memset(hist, 0, sizeof hist);
+				}
+			}
+			assert_int_equal(qw_alarm_add(&a, over), ev);
+			assert_int_equal(a.in_alarm, in);
+		}
+	}
+	gsl_rng_free(rng);
+}
+
+static void alarm_init_errors(void **st)
+{
+	struct qw_alarm a;
+
+	(void)st;
+	assert_int_equal(qw_alarm_init(&a, 0, 1, 1), QW_EINVAL);
+	assert_int_equal(qw_alarm_init(&a, 2, 1, 1), QW_EINVAL);
+	assert_int_equal(qw_alarm_init(&a, 1, 65, 1), QW_EINVAL);
+	assert_int_equal(qw_alarm_init(&a, 1, 1, 0), QW_EINVAL);
+	assert_string_equal(qw_strerror(QW_ECHECKSUM), "checksum mismatch");
+	assert_string_equal(qw_strerror(12345), "unknown error");
+}
+
+int main(void)
+{
+	const struct CMUnitTest tests[] = {
+		cmocka_unit_test(chisq_vs_nist_table),
+		cmocka_unit_test(nist_check_can_fail),
+		cmocka_unit_test(corrected_limit_shape),
+		cmocka_unit_test(alpha_argument_errors),
+		cmocka_unit_test(alarm_vs_reference),
+		cmocka_unit_test(alarm_init_errors),
+	};
+
+	gsl_set_error_handler_off();
+	return cmocka_run_group_tests(tests, NULL, NULL);
+}

@@ -1,2 +1,0 @@
-build/src/core/error.o: src/core/error.c src/core/quadwatch.h
-src/core/quadwatch.h:

@@ -1,2 +1,0 @@
-build/src/io/log.o: src/io/log.c src/io/log.h
-src/io/log.h:

@@ -21,7 +21,8 @@ from scipy import optimize, special, stats
 
 TOL = 1e-9
 SECONDS_PER_DAY = 86400.0
-FLOOR_MIN_SHARE = 0.5  # the documented top-up rule, ewcov.c
+FLOOR_MIN_SHARE = 0.5    # the documented top-up rule, ewcov.c:
+FLOOR_TOPUP_SHARE = 0.9  # f < 1/2, or f < 9/10 after p readings
 
 
 def rel(a, b):
@@ -125,7 +126,7 @@ def check_scores(lines):
         count += 1
         f *= 1 - w
         since += 1
-        if since >= p or f < FLOOR_MIN_SHARE:
+        if f < FLOOR_MIN_SHARE or (since >= p and f < FLOOR_TOPUP_SHARE):
             sig = sig + np.diag((1 - f) * fsq)
             f, since = 1.0, 0
     print(f"# numpy p={p} n={n} h={h:g}: worst relative difference of q {worst:.3g}")

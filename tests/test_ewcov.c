@@ -24,7 +24,8 @@
  * updates is ~1e-13 in practice, so 1e-9 leaves room but fails a bug. */
 #define TOL_FACTOR 1e-9
 #define TOL_SCORE 1e-9
-#define FLOOR_SHARE_MIN 0.5 /* mirrors EWCOV_FLOOR_MIN_SHARE */
+#define FLOOR_SHARE_MIN 0.5   /* mirrors EWCOV_FLOOR_MIN_SHARE */
+#define FLOOR_SHARE_TOPUP 0.9 /* mirrors EWCOV_FLOOR_TOPUP_SHARE */
 
 /* Explicit reference model: Sigma = S + f F as a full matrix. */
 struct ref {
@@ -62,7 +63,8 @@ static void ref_learn(struct ref *m, const double *x, double w)
 		m->mu[i] += w * r[i];
 	m->f *= 1 - w;
 	m->since++;
-	if (m->since >= p || m->f < FLOOR_SHARE_MIN) {
+	if (m->f < FLOOR_SHARE_MIN ||
+	    (m->since >= p && m->f < FLOOR_SHARE_TOPUP)) {
 		for (i = 0; i < p; i++)
 			m->sig[i * p + i] += (1 - m->f) * m->fsq[i];
 		m->f = 1.0;

@@ -61,6 +61,8 @@ struct qw_detector {
 				      or at the nominal rate (time mode) */
 	double *lim_f;             /* p+1: cached nu d/(nu-d+1) F^-1, by dof */
 	double *lim_nu;            /* p+1: grid nu each was computed at */
+	double *lim_hi;            /* p+1: the next grid point: the cached
+				      value holds for nu in [lim_nu, lim_hi) */
 	double last_t;             /* time of the last learned reading */
 	uint64_t alarm_run;        /* readings since the raise */
 	double kappa;              /* guard bias of Sigma (file top) */
@@ -118,6 +120,7 @@ void qw_detector_free(qw_detector *d)
 	free(d->floor);
 	free(d->lim_f);
 	free(d->lim_nu);
+	free(d->lim_hi);
 	free(d->work);
 	free(d->mask);
 	free(d->contrib);
@@ -160,10 +163,12 @@ qw_detector *qw_detector_alloc(const struct qw_params *par)
 	d->floor = calloc(p, sizeof *d->floor);
 	d->lim_f = calloc(p + 1, sizeof *d->lim_f);
 	d->lim_nu = calloc(p + 1, sizeof *d->lim_nu);
+	d->lim_hi = calloc(p + 1, sizeof *d->lim_hi);
 	d->work = malloc(qw_explain_work_len(p) * sizeof *d->work);
 	d->mask = malloc(p);
 	d->contrib = malloc(p * sizeof *d->contrib);
-	if (!d->floor || !d->lim_f || !d->lim_nu || !d->work || !d->mask ||
+	if (!d->floor || !d->lim_f || !d->lim_nu || !d->lim_hi || !d->work ||
+	    !d->mask ||
 	    !d->contrib)
 		goto fail;
 	if (par->floor != NULL)
@@ -191,6 +196,7 @@ int qw_detector_rebaseline(qw_detector *d)
 	qw_ewcov_reset(d->ew);
 	qw_alarm_reset(&d->alarm);
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
+	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
 	d->alarm_run = 0;
 	d->tshare = 0.0;
 	d->cnt.rebaselines++;
@@ -214,12 +220,21 @@ static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
 		*nu_out = nu;
 		return INFINITY;
 	}
+	if (nu >= d->lim_nu[dof] && nu < d->lim_hi[dof]) {
+		*nu_out = d->lim_nu[dof]; /* same grid cell as last time */
+		return scale * d->lim_f[dof];
+	}
 	if (isfinite(nu)) {
-		double step = log1p(QW_DET_NU_RTOL);
-		double grid = exp(floor(log(nu) / step) * step);
+		double step = log1p(QW_DET_NU_RTOL), k = floor(log(nu) / step);
+		double grid = exp(k * step);
 
 		/* Never round below the usable range. */
-		nu = grid > dof - 1.0 + QW_LIMIT_NU_MARGIN ? grid : nu;
+		if (grid > dof - 1.0 + QW_LIMIT_NU_MARGIN) {
+			d->lim_hi[dof] = exp((k + 1.0) * step);
+			nu = grid;
+		} else {
+			d->lim_hi[dof] = nu; /* not cached */
+		}
 	}
 	*nu_out = nu; /* the p-value uses the limit's own nu */
 	if (d->lim_nu[dof] != nu) {
@@ -482,5 +497,6 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 	d->last_t = h.last_t;
 	d->tshare = h.tshare;
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
+	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
 	return 0;
 }

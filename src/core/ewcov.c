@@ -1,10 +1,12 @@
 /* ewcov.c: exponentially weighted mean and covariance of p channels, kept
  * as the lower Cholesky factor L of Sigma = S + f F, where
  *   mu' = mu + w r,   S' = (1-w)(S + w r r'),   r = x - mu,
- * F = diag(floor^2) is the noise floor and f in [1/4, 1] the share of it
- * still in the factor (the scale by 1-w shrinks it too; it is topped back up
- * to f = 1 every p readings, or sooner when f falls below 1/2, by p rank-one
- * updates: O(p^3) every p readings, O(p^2) amortised).
+ * F = diag(floor^2) is the noise floor and f in [1/2, 1] the share of it
+ * still in the factor (the scale by 1-w shrinks it too).  It is topped back
+ * up to f = 1 by p rank-one updates, O(p^3), when f < 1/2, or when f < 9/10
+ * and p readings have passed since the last top-up: at most every p
+ * readings, so O(p^2) amortised, and with a long half-life only every
+ * ~0.15/lam readings.
  *
  * One sweep over L scores and updates (the fused form).  The score is
  * q = y'y with L y = r (forward substitution, column by column), and the
@@ -18,6 +20,10 @@
  *   u_i  -= y_j L_ij                      (forward substitution)
  *   L'_ij = c g L_ij + (c a_j y_j / g) u_i  (step 3: l' = l + beta u)
  *   a_{j+1} = a_j / g^2,  a_1 = w.
+ * Coded with b_j = 1/a_j, so the recurrence is b_{j+1} = b_j + y_j^2 (an
+ * addition, not a division, on the sweep's dependency chain), g =
+ * sqrt(b_{j+1}/b_j) and c a_j y_j / g = c y_j / sqrt(b_j b_{j+1}); the
+ * inverse pivots 1/L_jj are kept beside the factor, so y_j is a product.
  * The new factor goes to a second buffer, installed by qw_ewcov_learn only
  * when the caller decides the reading may be learned: a reading that is
  * not learned costs one sweep and leaves the model bit for bit as it was.
@@ -47,8 +53,10 @@
  * belongs in the configuration. */
 #define EWCOV_AUTO_FLOOR_REL 1e-7
 #define EWCOV_AUTO_FLOOR_MIN 1e-12
-/* Top the floor back up once its share in the factor falls below this. */
+/* Top the floor back up when its share in the factor falls below MIN, or
+ * below TOPUP once p readings have passed since the last top-up. */
 #define EWCOV_FLOOR_MIN_SHARE 0.5
+#define EWCOV_FLOOR_TOPUP_SHARE 0.9
 
 struct qw_ewcov {
 	size_t p;
@@ -56,13 +64,15 @@ struct qw_ewcov {
 	double *mu;          /* p: EW mean */
 	double *L;           /* packed factor of Sigma = S + f F */
 	double *Ln;          /* packed factor prepared by the last score */
+	double *iL;          /* p: 1/L_jj of L */
+	double *iLn;         /* p: 1/L_jj of Ln */
 	double *floor;       /* p: configured floors, 0 = auto (std dev) */
 	double *floorsq;     /* p: F_ii, resolved at the first reading */
 	double *r;           /* p: x - mu of the last scored reading */
 	double *u;           /* p: forward-substitution residual (work) */
 	double *sub;         /* p*p: marginal factor for partial readings */
 	size_t *idx;         /* p: observed channels of a partial reading */
-	double f;            /* share of F in the factor, [1/4, 1] */
+	double f;            /* share of F in the factor, [1/2, 1] */
 	size_t since_topup;  /* readings learned since the last top-up */
 	double w;            /* weight the pending factor was made with */
 	int pending;         /* Ln holds the update for r and w */
@@ -77,6 +87,8 @@ void qw_ewcov_free(qw_ewcov *ew)
 	free(ew->mu);
 	free(ew->L);
 	free(ew->Ln);
+	free(ew->iL);
+	free(ew->iLn);
 	free(ew->floor);
 	free(ew->floorsq);
 	free(ew->r);
@@ -103,13 +115,16 @@ qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor)
 	ew->mu = malloc(p * sizeof *ew->mu);
 	ew->L = malloc(qw_packed_len(p) * sizeof *ew->L);
 	ew->Ln = malloc(qw_packed_len(p) * sizeof *ew->Ln);
+	ew->iL = malloc(p * sizeof *ew->iL);
+	ew->iLn = malloc(p * sizeof *ew->iLn);
 	ew->floor = malloc(p * sizeof *ew->floor);
 	ew->floorsq = malloc(p * sizeof *ew->floorsq);
 	ew->r = malloc(p * sizeof *ew->r);
 	ew->u = malloc(p * sizeof *ew->u);
 	ew->sub = malloc(p * p * sizeof *ew->sub);
 	ew->idx = malloc(p * sizeof *ew->idx);
-	if (!ew->mu || !ew->L || !ew->Ln || !ew->floor || !ew->floorsq ||
+	if (!ew->mu || !ew->L || !ew->Ln || !ew->iL || !ew->iLn ||
+	    !ew->floor || !ew->floorsq ||
 	    !ew->r || !ew->u || !ew->sub || !ew->idx)
 		goto fail;
 	memcpy(ew->floor, floor, p * sizeof *floor);
@@ -126,8 +141,10 @@ static void ewcov_factor_from_floor(qw_ewcov *ew)
 	size_t j, p = ew->p;
 
 	memset(ew->L, 0, qw_packed_len(p) * sizeof *ew->L);
-	for (j = 0; j < p; j++)
+	for (j = 0; j < p; j++) {
 		ew->L[qw_packed_col(p, j)] = sqrt(ew->floorsq[j]);
+		ew->iL[j] = 1.0 / ew->L[qw_packed_col(p, j)];
+	}
 	ew->f = 1.0;
 	ew->since_topup = 0;
 	ew->pending = 0;
@@ -198,40 +215,62 @@ void qw_ewcov_first(qw_ewcov *ew, const double *x)
 	ew->W2 = 0.0;
 }
 
-/* The fused sweep: from u = r (overwritten), the factor src and weight a
- * (the update is src src' + a r r', then scaled by c), writes dst and
- * returns q = |src^-1 r|^2.  dst may equal src (in-place update), so no
- * restrict on them.  j0: first column where r is non-zero (the columns
- * before it are copied unchanged when dst != src). */
-static double ewcov_sweep(const double *src, double *dst, size_t p,
-			  double *restrict u, double a, double c, size_t j0)
+/* The fused sweep: from u = r (overwritten), the factor src with inverse
+ * pivots isrc, and weight a (the update is src src' + a r r', then scaled
+ * by c), writes dst and idst and returns q = |src^-1 r|^2.  j0: the first
+ * column where r is non-zero; the columns before it are copied. */
+__attribute__((target_clones("arch=x86-64-v3", "default")))
+static double ewcov_sweep(const double *restrict src,
+			  const double *restrict isrc, double *restrict dst,
+			  double *restrict idst, size_t p, double *restrict u,
+			  double a, double c, size_t j0)
 {
 	size_t j, i, len, off = qw_packed_col(p, j0);
-	double q = 0.0;
+	double q = 0.0, b = 1.0 / a, sb = sqrt(b), isb = 1.0 / sb;
 
-	if (dst != src && off > 0)
+	if (j0 > 0) {
 		memcpy(dst, src, off * sizeof *dst);
+		memcpy(idst, isrc, j0 * sizeof *idst);
+	}
 	for (j = j0; j < p; j++) {
-		const double *s = src + off;
-		double *d = dst + off;
-		double yj = u[j] / s[0];
-		double g2 = 1.0 + a * yj * yj;
-		double g = sqrt(g2);
-		double A = c * g, B = c * a * yj / g;
-		double *uj = u + j;
+		const double *restrict s = src + off;
+		double *restrict d = dst + off;
+		double *restrict uj = u + j;
+		double yj = u[j] * isrc[j];
+		double b1 = b + yj * yj;              /* b_{j+1} */
+		double sb1 = sqrt(b1), isb1 = 1.0 / sb1;
+
+		double A = c * sb1 * isb;             /* c g */
+		double B = c * yj * isb * isb1;       /* c a_j y_j / g */
 
 		len = p - j;
 		q += yj * yj;
 		d[0] = A * s[0];
+		/* 1/L'_jj from L'_jj itself, not carried as a product, so
+		 * the inverse pivots are a function of the factor alone (a
+		 * restored model scores bit for bit as the live one). */
+		idst[j] = 1.0 / d[0];
 		for (i = 1; i < len; i++) {
 			double ui = uj[i] - yj * s[i];
+
 			uj[i] = ui;
 			d[i] = A * s[i] + B * ui;
 		}
-		a /= g2;
+		b = b1, isb = isb1;
 		off += len;
 	}
 	return q;
+}
+
+/* Installs the factor in Ln as the current one. */
+static void ewcov_swap(qw_ewcov *ew)
+{
+	double *t = ew->L, *ti = ew->iL;
+
+	ew->L = ew->Ln;
+	ew->iL = ew->iLn;
+	ew->Ln = t;
+	ew->iLn = ti;
 }
 
 int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
@@ -246,7 +285,8 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 		ew->r[i] = x[i] - ew->mu[i];
 		ew->u[i] = ew->r[i];
 	}
-	qq = ewcov_sweep(ew->L, ew->Ln, p, ew->u, w, sqrt(1.0 - w), 0);
+	qq = ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, w,
+			 sqrt(1.0 - w), 0);
 	/* q finite implies every y_j, g and so every new element finite. */
 	if (!isfinite(qq))
 		return QW_ERROR(QW_ERANGE);
@@ -257,7 +297,8 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 }
 
 /* Adds (1 - f) F back into the factor: p rank-one updates with vectors
- * sqrt((1-f) F_ii) e_i, each starting at column i. */
+ * sqrt((1-f) F_ii) e_i, each starting at column i (through the second
+ * buffer, so the sweep never works in place). */
 static void ewcov_topup(qw_ewcov *ew)
 {
 	size_t i, p = ew->p;
@@ -267,7 +308,9 @@ static void ewcov_topup(qw_ewcov *ew)
 		for (i = 0; i < p; i++) {
 			memset(ew->u, 0, p * sizeof *ew->u);
 			ew->u[i] = sqrt(add * ew->floorsq[i]);
-			ewcov_sweep(ew->L, ew->L, p, ew->u, 1.0, 1.0, i);
+			ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u,
+				    1.0, 1.0, i);
+			ewcov_swap(ew);
 		}
 	}
 	ew->f = 1.0;
@@ -277,7 +320,7 @@ static void ewcov_topup(qw_ewcov *ew)
 int qw_ewcov_learn(qw_ewcov *ew, double gain)
 {
 	size_t i, p = ew->p;
-	double w = ew->w, a, *t;
+	double w = ew->w, a;
 
 	if (!ew->pending || !(gain > 0.0 && gain <= 1.0))
 		return QW_ERROR(QW_ESTATE);
@@ -288,11 +331,10 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 			ew->r[i] *= gain;
 			ew->u[i] = ew->r[i];
 		}
-		ewcov_sweep(ew->L, ew->Ln, p, ew->u, w, sqrt(1.0 - w), 0);
+		ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, w,
+			    sqrt(1.0 - w), 0);
 	}
-	t = ew->L;
-	ew->L = ew->Ln;
-	ew->Ln = t;
+	ewcov_swap(ew);
 	for (i = 0; i < p; i++)
 		ew->mu[i] += w * ew->r[i];
 	/* Effective-size recursions (file top); V before its own update. */
@@ -303,7 +345,8 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 	ew->n++;
 	ew->f *= 1.0 - w;
 	ew->since_topup++;
-	if (ew->since_topup >= p || ew->f < EWCOV_FLOOR_MIN_SHARE)
+	if (ew->f < EWCOV_FLOOR_MIN_SHARE ||
+	    (ew->since_topup >= p && ew->f < EWCOV_FLOOR_TOPUP_SHARE))
 		ewcov_topup(ew);
 	return 0;
 }
@@ -390,6 +433,11 @@ int qw_ewcov_verify(qw_ewcov *ew)
 
 /* State layout: a fixed header of scalars, then mu[p], floorsq[p] and the
  * packed factor.  Host order: a checkpoint is read back on the same host. */
+/* since_topup is bounded by the top-up rule; anything above this is not a
+ * state this code wrote (the count for f to fall from 1 to 1/2 at the
+ * smallest useful weight is far below it). */
+#define QW_MAX_READINGS_SINCE (UINT64_C(1) << 40)
+
 struct ewcov_state_head {
 	uint64_t p, n, since_topup;
 	double f, V, W1, W2;
@@ -433,7 +481,7 @@ static int ewcov_state_sane(const struct ewcov_state_head *h,
 
 	if (!(h->f >= 0.0 && h->f <= 1.0) || !(h->V >= 0.0 && h->V <= 1.0) ||
 	    !(h->W1 >= 0.0) || !(h->W2 >= 0.0) || !isfinite(h->W1) ||
-	    !isfinite(h->W2) || h->since_topup > p)
+	    !isfinite(h->W2) || h->since_topup > QW_MAX_READINGS_SINCE)
 		return 0;
 	for (i = 0; i < p; i++)
 		if (!isfinite(mu[i]) || !(fsq[i] > 0.0) || !isfinite(fsq[i]))
@@ -476,6 +524,8 @@ int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len)
 	memcpy(ew->mu, mu, p * sizeof(double));
 	memcpy(ew->floorsq, fsq, p * sizeof(double));
 	memcpy(ew->L, L, qw_packed_len(p) * sizeof(double));
+	for (size_t j = 0; j < p; j++)
+		ew->iL[j] = 1.0 / ew->L[qw_packed_col(p, j)];
 	ew->n = h.n;
 	ew->since_topup = (size_t)h.since_topup;
 	ew->f = h.f;

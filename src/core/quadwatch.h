@@ -50,7 +50,7 @@ const char *qw_strerror(int code);
 
 /* ---- ewcov.c: exponentially weighted mean and Cholesky factor ------------ */
 
-/* The model S + f*F, S the EW covariance, F = diag(floor^2), f in [1/4, 1],
+/* The model S + f*F, S the EW covariance, F = diag(floor^2), f in [1/2, 1],
  * kept as its lower Cholesky factor L; see ewcov.c for the update. */
 typedef struct qw_ewcov qw_ewcov;
 

@@ -1,0 +1,169 @@
+/* bench_core.c: per-reading cost of the detection core (update + score)
+ * for p = 4..128, beside a naive baseline that keeps the EW covariance as
+ * a matrix and re-factors it with GSL every reading (what the rank-one
+ * update avoids).  Prints medians of BENCH_RUNS runs and their ratio.  A
+ * benchmark, not a test: no verdicts. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
+#include <gsl/gsl_rng.h>
+#include <gsl/gsl_randist.h>
+
+#include "quadwatch.h"
+
+#define BENCH_RUNS 7           /* runs per size; the median is reported */
+#define BENCH_READINGS 400     /* distinct readings cycled through */
+#define BENCH_TARGET_NS 2.5e8  /* ~0.25 s of work per run */
+
+static double now_ns(void)
+{
+	struct timespec ts;
+
+	clock_gettime(CLOCK_MONOTONIC, &ts);
+	return (double)ts.tv_sec * 1e9 + (double)ts.tv_nsec;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+	double x = *(const double *)a, y = *(const double *)b;
+
+	return x < y ? -1 : x > y;
+}
+
+static double median(double *v, size_t n)
+{
+	qsort(v, n, sizeof *v, cmp_double);
+	return v[n / 2];
+}
+
+/* Correlated readings, mean 0, drawn once. */
+static double *readings(size_t p)
+{
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double *x = malloc(BENCH_READINGS * p * sizeof *x);
+	double *a = malloc(p * p * sizeof *a), *z = malloc(p * sizeof *z);
+	size_t k, i, j;
+
+	gsl_rng_set(rng, 1);
+	for (i = 0; i < p * p; i++)
+		a[i] = gsl_ran_gaussian(rng, 1.0) + (i % (p + 1) == 0 ? 2.385 : 0);
+	for (k = 0; k < BENCH_READINGS; k++) {
+		for (j = 0; j < p; j++)
+			z[j] = gsl_ran_gaussian(rng, 1.0);
+		for (i = 0; i < p; i++) {
+			double s = 0;
+
+			for (j = 0; j < p; j++)
+				s += a[i * p + j] * z[j];
+			x[k * p + i] = s;
+		}
+	}
+	gsl_rng_free(rng);
+	free(a);
+	free(z);
+	return x;
+}
+
+/* ns per reading through qw_detector_add, after warm-up. */
+static double run_detector(size_t p, const double *x, size_t n)
+{
+	struct qw_params par;
+	struct qw_result res;
+	qw_detector *d;
+	double t0, t1, sink = 0;
+	size_t k;
+
+	qw_params_default(&par, p);
+	par.half_life = 2000;
+	par.learn = QW_LEARN_ALL;
+	d = qw_detector_alloc(&par);
+	for (k = 0; k < 3000; k++)
+		qw_detector_add(d, (double)k, x + (k % BENCH_READINGS) * p, &res);
+	t0 = now_ns();
+	for (k = 0; k < n; k++) {
+		qw_detector_add(d, (double)k, x + (k % BENCH_READINGS) * p, &res);
+		sink += res.q;
+	}
+	t1 = now_ns();
+	qw_detector_free(d);
+	if (sink == 42.0)
+		puts("");
+	return (t1 - t0) / (double)n;
+}
+
+/* ns per reading: EW update of the explicit covariance, re-factor with
+ * gsl_linalg_cholesky_decomp1, score by a triangular solve. */
+static double run_naive(size_t p, const double *x, size_t n)
+{
+	gsl_matrix *s = gsl_matrix_alloc(p, p), *f = gsl_matrix_alloc(p, p);
+	gsl_vector *r = gsl_vector_alloc(p), *mu = gsl_vector_calloc(p);
+	double lam = 1 - pow(2, -1.0 / 2000), t0, t1, sink = 0, q;
+	size_t k, i;
+
+	gsl_matrix_set_identity(s);
+	t0 = now_ns();
+	for (k = 0; k < n; k++) {
+		const double *xk = x + (k % BENCH_READINGS) * p;
+
+		for (i = 0; i < p; i++)
+			gsl_vector_set(r, i, xk[i] - gsl_vector_get(mu, i));
+		gsl_matrix_memcpy(f, s);
+		gsl_linalg_cholesky_decomp1(f);
+		gsl_vector_memcpy(mu, r); /* scratch: y = L^-1 r */
+		gsl_blas_dtrsv(CblasLower, CblasNoTrans, CblasNonUnit, f, mu);
+		gsl_blas_ddot(mu, mu, &q);
+		sink += q;
+		gsl_matrix_scale(s, 1 - lam); /* S' = (1-l)(S + l r r') */
+		gsl_blas_dsyr(CblasLower, (1 - lam) * lam, r, s);
+		for (i = 0; i < p; i++) /* mu' = mu + l r, from x - r */
+			gsl_vector_set(mu, i, xk[i] - (1 - lam) *
+						      gsl_vector_get(r, i));
+	}
+	t1 = now_ns();
+	gsl_matrix_free(s), gsl_matrix_free(f);
+	gsl_vector_free(r), gsl_vector_free(mu);
+	if (sink == 42.0)
+		puts("");
+	return (t1 - t0) / (double)n;
+}
+
+int main(void)
+{
+	const size_t sizes[] = {4, 8, 16, 32, 64, 128};
+	size_t i, j;
+
+	gsl_set_error_handler_off();
+	printf("core: ns per reading (score + update), median of %d runs\n",
+	       BENCH_RUNS);
+	printf("%5s %12s %14s %8s %14s\n", "p", "quadwatch", "naive refactor",
+	       "ratio", "state bytes");
+	for (i = 0; i < sizeof sizes / sizeof sizes[0]; i++) {
+		size_t p = sizes[i], n, nn;
+		double *x = readings(p), a[BENCH_RUNS], b[BENCH_RUNS];
+		double ma, mb, est = 0.6 * (double)(p * p) + 20;
+		struct qw_params par;
+		qw_detector *d;
+
+		n = (size_t)(BENCH_TARGET_NS / est);
+		nn = (size_t)(BENCH_TARGET_NS / (0.5 * (double)(p * p * p) + 200));
+		for (j = 0; j < BENCH_RUNS; j++) {
+			a[j] = run_detector(p, x, n);
+			b[j] = run_naive(p, x, nn > 100 ? nn : 100);
+		}
+		ma = median(a, BENCH_RUNS);
+		mb = median(b, BENCH_RUNS);
+		qw_params_default(&par, p);
+		d = qw_detector_alloc(&par);
+		printf("%5zu %12.1f %14.1f %7.1fx %14zu\n", p, ma, mb, mb / ma,
+		       qw_detector_state_len(d));
+		qw_detector_free(d);
+		free(x);
+	}
+	return 0;
+}

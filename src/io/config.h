@@ -30,6 +30,7 @@ struct qw_group_conf {
 					   0 = auto */
 	struct qw_params params;        /* params.floor points at floor */
 	int line;                       /* line of the section header */
+	int half_life_line;             /* line of half_life; 0 = default */
 };
 
 struct qw_config {
@@ -47,6 +48,8 @@ struct qw_config {
 	/* [security]: CURVE; all "" when off (see docs/operations.md) */
 	char server_key[1024];          /* secret key file of this daemon */
 	char client_keys[1024];         /* directory of allowed public keys */
+	char publisher_key[1024];       /* public key file of the publishers
+					   that connecting inputs reach */
 };
 
 #define QW_CONFIG_DEFAULT_INPUT ">tcp://127.0.0.1:5601"
@@ -59,6 +62,10 @@ struct qw_config {
  * expected" to err; *cfg is then empty and safe to free. */
 int qw_config_load(const char *path, struct qw_config *cfg, char *err,
 		   size_t errlen);
+/* The same from text in memory (NUL-terminated); name stands for the file
+ * in messages and in cfg->path.  For tests and fuzzing. */
+int qw_config_load_string(const char *text, const char *name,
+			  struct qw_config *cfg, char *err, size_t errlen);
 void qw_config_free(struct qw_config *cfg);
 /* The group named name, or NULL. */
 const struct qw_group_conf *qw_config_group(const struct qw_config *cfg,

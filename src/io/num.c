@@ -39,7 +39,8 @@ int qw_num_double(const char *s, size_t len, int allow_nan, int allow_inf,
 
 	if (num_trim(s, len, buf) != 0)
 		return QW_ENUMBER;
-	if (strcasecmp(buf, "nan") == 0) {
+	/* printf writes a NaN with its sign bit set as "-nan" */
+	if (strcasecmp(buf + (buf[0] == '-' || buf[0] == '+'), "nan") == 0) {
 		if (!allow_nan)
 			return QW_ERROR(QW_ENUMBER);
 		*out = NAN;
@@ -112,7 +113,10 @@ int qw_num_duration(const char *s, int *had_unit, double *out)
 			continue;
 		if (qw_num_double(buf, u, 0, 0, &v) != 0 || v < 0)
 			return QW_ERROR(QW_ENUMBER);
-		*out = v * num_units[i].seconds;
+		v *= num_units[i].seconds;
+		if (!isfinite(v))
+			return QW_ERROR(QW_ENUMBER); /* 1e304d overflows */
+		*out = v;
 		return 0;
 	}
 	return QW_ERROR(QW_ENUMBER);

@@ -1,0 +1,211 @@
+/* check.c: `quadwatch check -c FILE`: validates a configuration and prints
+ * what it implies, without touching the bus (as ntpd -n does).  For each
+ * group it builds the real detector (qw_detector_alloc) and prints the
+ * per-reading alpha solved from alarms_per_day, rate and persist, the plain
+ * chi-square limit and the finite-sample corrected limit at full effective
+ * size.  Output is one "key: value [unit]" line per fact, a blank line and
+ * "group: NAME" before each group's indented lines, numbers at %.10g, so
+ * that scripts can read it (see quadwatch-check(1)).
+ * Exit: 0 valid, 1 out of memory, 2 usage or configuration error. */
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "cmd.h"
+#include "config.h"
+
+#define CHK_VALUE_COL 27 /* column of values: after the longest key */
+
+static void chk_usage(FILE *f)
+{
+	fprintf(f, "usage: quadwatch check -c FILE [-q]\n"
+		   "  -c FILE  configuration to validate (quadwatch.ini(5))\n"
+		   "  -q       print nothing; the exit code tells\n"
+		   "  -h       this help\n");
+}
+
+/* "key:" indented and padded so that values start in one column. */
+static void chk_key(int indent, const char *key)
+{
+	int pad = CHK_VALUE_COL - indent - (int)strlen(key) - 1;
+
+	printf("%*s%s:%*s", indent, "", key, pad > 1 ? pad : 1, "");
+}
+
+/* One aligned "key: value" line; indent 2 inside a group. */
+static void chk_kv(int indent, const char *key, const char *fmt, ...)
+	__attribute__((format(printf, 3, 4)));
+static void chk_kv(int indent, const char *key, const char *fmt, ...)
+{
+	va_list ap;
+
+	chk_key(indent, key);
+	va_start(ap, fmt);
+	vprintf(fmt, ap);
+	va_end(ap);
+	putchar('\n');
+}
+
+static void chk_endpoint(const char *key, const struct qw_endpoint *ep)
+{
+	if (ep->addr[0] == '\0')
+		chk_kv(0, key, "none");
+	else
+		chk_kv(0, key, "%c%s", ep->bind ? '@' : '>', ep->addr);
+}
+
+static void chk_daemon(const struct qw_config *c)
+{
+	size_t i;
+
+	chk_kv(0, "config", "%s", c->path);
+	for (i = 0; i < c->ninputs; i++)
+		chk_endpoint("input", &c->inputs[i]);
+	chk_endpoint("alerts", &c->alerts);
+	chk_endpoint("control", &c->control);
+	chk_kv(0, "stats_every", "%.10g s", c->stats_every);
+	chk_kv(0, "max_frame", "%zu bytes", c->max_frame);
+	chk_kv(0, "state_dir", "%s", c->state_dir[0] ? c->state_dir : "none");
+	chk_kv(0, "state_every", "%.10g s", c->state_every);
+	chk_kv(0, "security", "%s", c->server_key[0] || c->client_keys[0] ?
+	       "curve" : "off");
+	chk_kv(0, "groups", "%zu", c->ngroups);
+}
+
+/* A list of p channel names or floors on one line. */
+static void chk_list(const struct qw_group_conf *g, int floors)
+{
+	size_t i;
+	int auto_all = 1;
+
+	for (i = 0; i < g->p; i++)
+		auto_all &= g->floor[i] == 0;
+	chk_key(2, floors ? "floor" : "channels");
+	if (floors && auto_all) {
+		printf("auto\n");
+		return;
+	}
+	for (i = 0; i < g->p; i++) {
+		if (floors)
+			printf("%s%.10g", i ? ", " : "", g->floor[i]);
+		else
+			printf("%s%s", i ? ", " : "", g->channels[i]);
+	}
+	putchar('\n');
+}
+
+static void chk_params(const struct qw_group_conf *g)
+{
+	const struct qw_params *par = &g->params;
+	static const char *const learn[] = {"skip", "clip", "all"};
+
+	chk_kv(2, "line", "%d", g->line);
+	chk_list(g, 0);
+	chk_kv(2, "p", "%zu", g->p);
+	if (par->time_based)
+		chk_kv(2, "half_life", "%.10g s (%.10g readings at the "
+		       "nominal rate)", par->half_life,
+		       par->half_life * par->rate);
+	else
+		chk_kv(2, "half_life", "%.10g readings (%.10g s at the "
+		       "nominal rate)", par->half_life,
+		       par->half_life / par->rate);
+	chk_kv(2, "rate", "%.10g readings/s", par->rate);
+	chk_kv(2, "alarms_per_day", "%.10g", par->alarms_per_day);
+	chk_kv(2, "persist", "%u/%u", par->persist_k, par->persist_m);
+	chk_kv(2, "clear", "%u readings", par->clear_n);
+	chk_kv(2, "warmup", "%llu readings (%.10g s)",
+	       (unsigned long long)par->warmup,
+	       (double)par->warmup / par->rate);
+	chk_kv(2, "learn", "%s", learn[par->learn <= QW_LEARN_ALL ?
+				      par->learn : 0]);
+	if (par->relearn_after > 0)
+		chk_kv(2, "relearn_after", "%llu readings",
+		       (unsigned long long)par->relearn_after);
+	else
+		chk_kv(2, "relearn_after", "never");
+	chk_kv(2, "correct", "%s", par->correct ? "yes" : "no");
+	chk_list(g, 1);
+}
+
+/* Builds group g's detector and prints what it derives.  0, or an exit
+ * code with a message on stderr. */
+static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
+		     int quiet)
+{
+	const struct qw_params *par = &g->params;
+	qw_detector *d = qw_detector_alloc(par);
+	double alpha, plain, steady;
+
+	if (d == NULL) {
+		fprintf(stderr, "quadwatch check: %s:%d: [group %s]: cannot "
+			"build the detector (%zu channels): out of memory\n",
+			c->path, g->line, g->name, g->p);
+		return QW_EXIT_FAIL;
+	}
+	alpha = qw_detector_alpha(d);
+	plain = qw_limit_chisq(alpha, (unsigned)g->p);
+	steady = qw_detector_steady_limit(d);
+	qw_detector_free(d);
+	if (!isfinite(steady)) {
+		fprintf(stderr, "quadwatch check: %s:%d: [group %s] half_life: "
+			"expected a longer half-life: at %.10g the model's "
+			"effective size cannot support a limit for %zu "
+			"channels, so the group could never alarm\n", c->path,
+			g->half_life_line ? g->half_life_line : g->line,
+			g->name, par->half_life, g->p);
+		return QW_EXIT_USAGE;
+	}
+	if (quiet)
+		return 0;
+	printf("\n");
+	chk_kv(0, "group", "%s", g->name);
+	chk_params(g);
+	chk_kv(2, "alpha", "%.10g", alpha);
+	chk_kv(2, "limit_chisq", "%.10g", plain);
+	chk_kv(2, "limit_steady", "%.10g", steady);
+	chk_kv(2, "exceedances_per_day", "%.10g",
+	       alpha * par->rate * QW_SECONDS_PER_DAY);
+	chk_kv(2, "expected_alarms_per_day", "%.10g", par->alarms_per_day);
+	chk_kv(2, "fingerprint", "%016llx",
+	       (unsigned long long)qw_config_fingerprint(g));
+	return 0;
+}
+
+int qw_cmd_check(int argc, char **argv)
+{
+	struct qw_config cfg;
+	char err[QW_CONFIG_ERR_MAX];
+	const char *path = NULL;
+	int c, quiet = 0, rc = 0;
+	size_t i;
+
+	optind = 1;
+	while ((c = getopt(argc, argv, "c:qh")) != -1) {
+		switch (c) {
+		case 'c': path = optarg; break;
+		case 'q': quiet = 1; break;
+		case 'h': chk_usage(stdout); return QW_EXIT_OK;
+		default: chk_usage(stderr); return QW_EXIT_USAGE;
+		}
+	}
+	if (path == NULL || optind != argc) {
+		chk_usage(stderr);
+		return QW_EXIT_USAGE;
+	}
+	rc = qw_config_load(path, &cfg, err, sizeof err);
+	if (rc != 0) {
+		fprintf(stderr, "quadwatch check: %s\n", err);
+		return rc == QW_ENOMEM ? QW_EXIT_FAIL : QW_EXIT_USAGE;
+	}
+	if (!quiet)
+		chk_daemon(&cfg);
+	for (i = 0; rc == 0 && i < cfg.ngroups; i++)
+		rc = chk_group(&cfg, &cfg.groups[i], quiet);
+	qw_config_free(&cfg);
+	if (rc == 0 && fflush(stdout) != 0)
+		return QW_EXIT_FAIL;
+	return rc;
+}

@@ -359,6 +359,13 @@ static void test_unterminated_quote(void **state)
 	assert_int_equal(log.n, 1);
 	assert_non_null(strstr(log.msg[0], "unterminated quoted field"));
 	t_close(c);
+	/* a closed quote at the very end, without a newline, is fine */
+	c = t_open("time,flow\n1,\"2\"", &log);
+	assert_int_equal(qw_csvin_next(c, &row), 1);
+	assert_int_equal(row->line, 2);
+	assert_int_equal(qw_csvin_next(c, &row), 0);
+	assert_int_equal(qw_csvin_bad(c), 0);
+	t_close(c);
 }
 
 /* A runaway quote over more than QW_CSVIN_FIELD_MAX bytes is fatal. */

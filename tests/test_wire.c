@@ -350,6 +350,49 @@ static void test_binary_inf_and_nan(void **state)
 	}
 }
 
+static void t_put64(unsigned char *d, uint64_t v)
+{
+	t_put32(d, (uint32_t)v);
+	t_put32(d + 4, (uint32_t)(v >> 32));
+}
+
+/* Times beyond QW_WIRE_TIME_MAX (9.2e18 ns) are refused in every format,
+ * so whatever decodes can be encoded again (found by fuzz_wire: a time
+ * near INT64_MIN ns decoded to a double the encoder could not take). */
+static void test_time_range(void **state)
+{
+	static const struct {
+		int64_t ns;
+		int rc;
+	} c[] = {
+		{INT64_C(9200000000000000000), 0},
+		{INT64_C(-9200000000000000000), 0},
+		{INT64_C(9200000000000000001), QW_ERANGE},
+		{INT64_C(-9200000000000000001), QW_ERANGE},
+		{INT64_MIN + 0x401c, QW_ERANGE},
+		{INT64_MAX, QW_ERANGE},
+	};
+	unsigned char frame[1024], again[1024];
+	struct qw_wire_batch b;
+	struct t_buf o;
+	size_t len = t_frame(frame, sizeof frame, 5, 2), k;
+
+	(void)state;
+	t_batch(&b, &o, 5);
+	for (k = 0; k < sizeof c / sizeof c[0]; k++) {
+		t_put64(frame + 24 + 48, (uint64_t)c[k].ns); /* record 1 */
+		assert_int_equal(qw_wire_decode(frame, len, &b), c[k].rc);
+		if (c[k].rc == 0)
+			assert_int_equal(qw_wire_encode_binary(again,
+					 sizeof again, 5, 2, 0, b.t, b.x), len);
+	}
+	assert_true(QW_WIRE_TIME_MAX == 9.2e9);
+	assert_int_equal(qw_wire_decode("9.2e9,1,2,3,4,5", 15, &b), 0);
+	assert_int_equal(qw_wire_decode("-9.2e9,1,2,3,4,5", 16, &b), 0);
+	assert_int_equal(qw_wire_decode("9.2000001e9,1,2,3,4,5", 21, &b),
+			 QW_ERANGE);
+}
+
 /* ---- text and JSON rejections -------------------------------------------- */
 
 struct t_case {
@@ -397,7 +440,7 @@ static void test_text_cases(void **state)
 		{"1700000000,0,-Infinity,0", QW_ERANGE},
 		{"1700000000,1e999,0,0", QW_ERANGE},
 		{"inf,1,2,3", QW_ERANGE},
-		{"1e10,1,2,3", QW_ERANGE},            /* past int64 ns */
+		{"1e10,1,2,3", QW_ERANGE},            /* past QW_WIRE_TIME_MAX */
 		{"-1e10,1,2,3", QW_ERANGE},
 		{"1700000000,1,2,3\n1700000001,1,2,3", QW_EFORMAT},
 		{"1700000000,1,2\n,3", QW_EFORMAT},   /* not glued over lines */
@@ -530,7 +573,7 @@ static void test_encoders_refuse(void **state)
 	x[2] = 1.0;
 	t = NAN;
 	assert_int_equal(qw_wire_encode_text(text, sizeof text, 5, t, x), 0);
-	t = 9.3e9; /* past int64 ns */
+	t = 9.3e9; /* past QW_WIRE_TIME_MAX */
 	assert_int_equal(qw_wire_encode_json(text, sizeof text, 5, t, x), 0);
 	assert_int_equal(qw_wire_encode_binary(frame, sizeof frame, 5, 1, 0, &t,
 					       x), 0);
@@ -582,6 +625,7 @@ int main(void)
 		cmocka_unit_test(test_binary_header_rejections),
 		cmocka_unit_test(test_binary_count_overflow),
 		cmocka_unit_test(test_binary_inf_and_nan),
+		cmocka_unit_test(test_time_range),
 		cmocka_unit_test(test_text_cases),
 		cmocka_unit_test(test_json_cases),
 		cmocka_unit_test(test_junk_10mb),

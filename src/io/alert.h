@@ -25,12 +25,15 @@ struct qw_alert {
 	const char (*names)[64]; /* the group's channel names by index */
 };
 
-/* Writes the JSON object (no newline) into buf; returns its length, or 0
- * if cap is too small.  Non-finite numbers are written as null. */
+/* Writes the JSON object (no newline, NUL-terminated) into buf; returns
+ * its length, or 0 if cap is too small, event is not raise/clear, a name is
+ * not UTF-8, or memory ran out.  Non-finite numbers are written as null;
+ * at most QW_ALERT_MAX_CHANNELS channels are listed. */
 size_t qw_alert_encode(char *buf, size_t cap, const struct qw_alert *a);
 
-/* Parsed form for tail and tests; strings point into storage owned by the
- * struct (freed by qw_alert_parsed_free). */
+/* Parsed form for tail and tests; names are copied into the struct's own
+ * arrays (nothing to free).  null numbers read as NaN; unknown keys are
+ * ignored; channels past QW_ALERT_MAX_CHANNELS are dropped. */
 struct qw_alert_parsed {
 	char group[64];
 	double time, score, limit, pvalue;

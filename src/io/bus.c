@@ -6,6 +6,10 @@
  * (zmq_recv truncates and returns the wire length, so an oversize frame is
  * detected without an allocation of ours), non-blocking sends whose drops
  * the caller counts, a poller over a fixed socket set, and zmq_proxy.
+ * CURVE (RFC 26, libzmq with libsodium): keys are applied per socket from
+ * struct qw_bus_curve; client authentication is the ZAP handler's (RFC 27,
+ * auth.c decides, the daemon services the socket), and multi-frame
+ * qw_bus_recv_parts/qw_bus_send_parts carry its requests and replies.
  *
  * Workload: the daemon receives tens of thousands of frames a second (one
  * binary batch of 64 readings each at full rate); per message this file
@@ -108,17 +112,73 @@ static int bus_setint(void *z, int opt, int v)
 	return zmq_setsockopt(z, opt, &v, sizeof v);
 }
 
-/* The place where CURVE (ZMQ_CURVE_SERVER, _SECRETKEY, ZAP handler) is
- * applied once the security work lands: called on every socket after its
- * options and before bind/connect.  No security configured: nothing to do. */
-static int bus_secure(void *z, int kind, const void *security)
+/* RFC 27: the domain our CURVE servers give their ZAP requests; the
+ * daemon's handler serves this one context only. */
+#define BUS_ZAP_DOMAIN "quadwatch"
+
+/* CURVE on a socket, after its other options and before bind/connect
+ * (libzmq reads the mechanism when a connection starts).  A server asks
+ * the ZAP handler at QW_BUS_ZAP_ENDPOINT about every client key; its
+ * caller binds that handler first, or libzmq lets every key in. */
+static int bus_secure(void *z, const struct qw_bus_curve *c)
 {
-	(void)z;
-	(void)kind;
-	if (security != NULL)
-		return QW_ERROR(QW_EINVAL); /* not built yet: refuse, never
-					       silently run in the clear */
+	if (c == NULL)
+		return 0;
+	if (!qw_bus_has_curve()) {
+		errno = ENOTSUP;
+		return QW_ERROR(QW_EIO);
+	}
+	if (c->server) {
+		if (bus_setint(z, ZMQ_CURVE_SERVER, 1) ||
+		    zmq_setsockopt(z, ZMQ_ZAP_DOMAIN, BUS_ZAP_DOMAIN,
+				   strlen(BUS_ZAP_DOMAIN)) ||
+		    zmq_setsockopt(z, ZMQ_CURVE_SECRETKEY, c->secret_key,
+				   QW_BUS_KEY_BYTES))
+			return QW_ERROR(QW_EIO);
+		return 0;
+	}
+	if (zmq_setsockopt(z, ZMQ_CURVE_SERVERKEY, c->server_key,
+			   QW_BUS_KEY_BYTES) ||
+	    zmq_setsockopt(z, ZMQ_CURVE_PUBLICKEY, c->public_key,
+			   QW_BUS_KEY_BYTES) ||
+	    zmq_setsockopt(z, ZMQ_CURVE_SECRETKEY, c->secret_key,
+			   QW_BUS_KEY_BYTES))
+		return QW_ERROR(QW_EIO);
 	return 0;
+}
+
+int qw_bus_has_curve(void)
+{
+	return zmq_has("curve") != 0;
+}
+
+/* libzmq hands keys out in Z85 (40 characters and a NUL). */
+#define BUS_Z85_BYTES 41
+
+int qw_bus_curve_keypair(unsigned char pub[QW_BUS_KEY_BYTES],
+			 unsigned char sec[QW_BUS_KEY_BYTES])
+{
+	char zp[BUS_Z85_BYTES], zs[BUS_Z85_BYTES];
+	int rc = 0;
+
+	if (zmq_curve_keypair(zp, zs) != 0 ||
+	    zmq_z85_decode(pub, zp) == NULL || zmq_z85_decode(sec, zs) == NULL)
+		rc = QW_ERROR(QW_EIO);
+	explicit_bzero(zs, sizeof zs);
+	return rc;
+}
+
+int qw_bus_curve_public(const unsigned char sec[QW_BUS_KEY_BYTES],
+			unsigned char pub[QW_BUS_KEY_BYTES])
+{
+	char zp[BUS_Z85_BYTES], zs[BUS_Z85_BYTES];
+	int rc = 0;
+
+	if (zmq_z85_encode(zs, sec, QW_BUS_KEY_BYTES) == NULL ||
+	    zmq_curve_public(zp, zs) != 0 || zmq_z85_decode(pub, zp) == NULL)
+		rc = QW_ERROR(QW_EIO);
+	explicit_bzero(zs, sizeof zs);
+	return rc;
 }
 
 static int bus_options(void *z, int kind, const struct qw_bus_opts *o)
@@ -130,11 +190,14 @@ static int bus_options(void *z, int kind, const struct qw_bus_opts *o)
 		return QW_ERROR(QW_EIO);
 	if (o->rcvhwm > 0 && bus_setint(z, ZMQ_RCVHWM, o->rcvhwm))
 		return QW_ERROR(QW_EIO);
+	if (kind == QW_BUS_XPUB && o->xpub_nodrop &&
+	    bus_setint(z, ZMQ_XPUB_NODROP, 1))
+		return QW_ERROR(QW_EIO);
 	if (bus_setint(z, ZMQ_SNDTIMEO, o->sndtimeo_ms) ||
 	    bus_setint(z, ZMQ_RCVTIMEO, o->rcvtimeo_ms) ||
 	    bus_setint(z, ZMQ_LINGER, o->linger_ms))
 		return QW_ERROR(QW_EIO);
-	return bus_secure(z, kind, o->security);
+	return bus_secure(z, o->security);
 }
 
 int qw_bus_open(qw_bus *bus, int kind, const struct qw_endpoint *ep,
@@ -265,6 +328,25 @@ int qw_bus_recv(qw_bus_sock *s, struct qw_bus_msg *m, int dontwait)
 	return 0;
 }
 
+int qw_bus_recv_frame(qw_bus_sock *s, void *buf, size_t cap, size_t *len,
+		      int dontwait)
+{
+	unsigned char discard[BUS_DISCARD_BYTES];
+	int n = zmq_recv(s->z, buf, cap, dontwait ? ZMQ_DONTWAIT : 0);
+
+	*len = 0;
+	if (n < 0) {
+		if (zmq_errno() == EAGAIN || zmq_errno() == EINTR)
+			return 1;
+		return QW_ERROR(QW_EIO);
+	}
+	*len = (size_t)n;
+	while (bus_more(s->z))
+		if (zmq_recv(s->z, discard, sizeof discard, 0) < 0)
+			return QW_ERROR(QW_EIO);
+	return 0;
+}
+
 int qw_bus_send(qw_bus_sock *s, const void *head, size_t head_len,
 		const void *body, size_t body_len, int dontwait)
 {
@@ -282,6 +364,54 @@ fail:
 	if (zmq_errno() == EAGAIN || zmq_errno() == EINTR)
 		return 1;
 	return QW_ERROR(QW_EIO);
+}
+
+int qw_bus_recv_parts(qw_bus_sock *s, struct qw_bus_parts *p, int dontwait)
+{
+	unsigned char discard[BUS_DISCARD_BYTES];
+	int flags = dontwait ? ZMQ_DONTWAIT : 0, n;
+
+	p->n = 0;
+	do {
+		if (p->n < QW_BUS_PARTS_MAX)
+			n = zmq_recv(s->z, p->data[p->n], QW_BUS_PART_BYTES,
+				     flags);
+		else
+			n = zmq_recv(s->z, discard, sizeof discard, flags);
+		if (n < 0) {
+			if (p->n == 0 && (zmq_errno() == EAGAIN ||
+					  zmq_errno() == EINTR))
+				return 1;
+			return QW_ERROR(QW_EIO);
+		}
+		if (p->n < QW_BUS_PARTS_MAX)
+			p->len[p->n] = (size_t)n;
+		p->n++;
+		flags = 0; /* the rest of the message is already here */
+	} while (bus_more(s->z));
+	return 0;
+}
+
+int qw_bus_send_parts(qw_bus_sock *s, const struct qw_bus_parts *p,
+		      int dontwait)
+{
+	int flags = dontwait ? ZMQ_DONTWAIT : 0;
+	unsigned i;
+
+	if (p->n == 0 || p->n > QW_BUS_PARTS_MAX)
+		return QW_ERROR(QW_EINVAL);
+	for (i = 0; i < p->n; i++) {
+		if (p->len[i] > QW_BUS_PART_BYTES)
+			return QW_ERROR(QW_EINVAL);
+		if (zmq_send(s->z, p->data[i], p->len[i],
+			     flags | (i + 1 < p->n ? ZMQ_SNDMORE : 0)) < 0) {
+			if (i == 0 && (zmq_errno() == EAGAIN ||
+				       zmq_errno() == EINTR))
+				return 1;
+			return QW_ERROR(QW_EIO);
+		}
+	}
+	return 0;
 }
 
 qw_bus_poller *qw_bus_poller_alloc(size_t cap)

@@ -17,6 +17,13 @@
 
 #define QW_BUS_TOPIC_MAX 256 /* bytes of frame 1 kept (topics, commands) */
 
+#define QW_BUS_KEY_BYTES 32 /* a Curve25519 key in binary (RFC 26) */
+#define QW_BUS_ZAP_ENDPOINT "inproc://zeromq.zap.01" /* RFC 27: ZAP */
+#define QW_BUS_PARTS_MAX 8      /* frames kept by qw_bus_recv_parts; a ZAP
+				   request for CURVE has 7 */
+#define QW_BUS_PART_BYTES 256   /* bytes kept per frame: ZAP frames are
+				   short strings and a 32-byte key */
+
 typedef struct qw_bus qw_bus;           /* one libzmq context */
 typedef struct qw_bus_sock qw_bus_sock; /* one socket and its endpoint */
 typedef struct qw_bus_poller qw_bus_poller;
@@ -40,9 +47,23 @@ struct qw_bus_opts {
 	int sndtimeo_ms;  /* ZMQ_SNDTIMEO; -1 blocks */
 	int rcvtimeo_ms;  /* ZMQ_RCVTIMEO; -1 blocks */
 	int linger_ms;    /* ZMQ_LINGER at close */
-	/* Security hook: CURVE keys will be added here by the security work
-	 * (see bus_secure in bus.c); NULL/zero today = plain. */
-	const void *security;
+	int xpub_nodrop;  /* XPUB: ZMQ_XPUB_NODROP, a full subscriber makes
+			     sends wait (or return 1) instead of dropping;
+			     for lossless benchmarks, never the daemon */
+	/* CURVE (RFC 26) for this socket; NULL = in the clear. */
+	const struct qw_bus_curve *security;
+};
+
+/* CURVE keys of one socket.  A server (bound sockets of the daemon) has
+ * its own key pair and asks the context's ZAP handler about each client;
+ * a client has its own key pair (long-term or made for the session) and
+ * must know the server's public key, so it cannot talk to an impostor. */
+struct qw_bus_curve {
+	int server;                                  /* 1 server, 0 client */
+	unsigned char public_key[QW_BUS_KEY_BYTES];  /* own */
+	unsigned char secret_key[QW_BUS_KEY_BYTES];  /* own */
+	unsigned char server_key[QW_BUS_KEY_BYTES];  /* client: the server's
+							public key */
 };
 
 /* max_msg 0, HWMs 0, timeouts -1, linger 0, no security. */
@@ -94,11 +115,39 @@ struct qw_bus_msg {
  * or with the socket's receive timeout.  0 received, 1 nothing there
  * (or interrupted), QW_EIO. */
 int qw_bus_recv(qw_bus_sock *s, struct qw_bus_msg *m, int dontwait);
+/* Receives one whole message and keeps only frame 1, in buf[0..cap);
+ * *len is its length on the wire (> cap: cut).  For single-frame replies
+ * larger than a topic (ctl).  0, 1 or QW_EIO as qw_bus_recv. */
+int qw_bus_recv_frame(qw_bus_sock *s, void *buf, size_t cap, size_t *len,
+		      int dontwait);
 /* Sends head (and body when body != NULL) as one message.  With dontwait
  * a send that would block returns 1 and the message is dropped (the
  * caller counts it).  0, 1 or QW_EIO. */
 int qw_bus_send(qw_bus_sock *s, const void *head, size_t head_len,
 		const void *body, size_t body_len, int dontwait);
+
+/* Several frames, each cut to QW_BUS_PART_BYTES (len: on the wire). */
+struct qw_bus_parts {
+	unsigned char data[QW_BUS_PARTS_MAX][QW_BUS_PART_BYTES];
+	size_t len[QW_BUS_PARTS_MAX];  /* bytes on the wire */
+	unsigned n;                    /* frames in the message, all counted */
+};
+/* Receives one whole message into p (frames past QW_BUS_PARTS_MAX are
+ * counted in p->n and dropped).  0, 1 or QW_EIO as qw_bus_recv. */
+int qw_bus_recv_parts(qw_bus_sock *s, struct qw_bus_parts *p, int dontwait);
+/* Sends p->n frames (each len <= QW_BUS_PART_BYTES).  0, 1, QW_EIO or
+ * QW_EINVAL. */
+int qw_bus_send_parts(qw_bus_sock *s, const struct qw_bus_parts *p,
+		      int dontwait);
+
+/* CURVE support.  1 when libzmq was built with CURVE (libsodium). */
+int qw_bus_has_curve(void);
+/* A fresh key pair (binary).  0 or QW_EIO (no CURVE in libzmq). */
+int qw_bus_curve_keypair(unsigned char pub[QW_BUS_KEY_BYTES],
+			 unsigned char sec[QW_BUS_KEY_BYTES]);
+/* The public key of a secret key.  0 or QW_EIO. */
+int qw_bus_curve_public(const unsigned char sec[QW_BUS_KEY_BYTES],
+			unsigned char pub[QW_BUS_KEY_BYTES]);
 
 /* Polling: a fixed set of sockets, readable events only. */
 qw_bus_poller *qw_bus_poller_alloc(size_t cap);

@@ -16,6 +16,8 @@
 
 #define QW_WIRE_MAGIC "QWB1"
 #define QW_WIRE_HEADER 24u /* bytes: magic, p, n, flags, seq */
+#define QW_WIRE_TIME_MAX 9.2e9 /* seconds: |time| limit of every format
+				  (year 2261; int64 ns reach 9.22e9) */
 
 enum qw_wire_format {
 	QW_WIRE_BINARY = 0, /* QWB1 batches */
@@ -39,12 +41,16 @@ struct qw_wire_batch {
 /* Detects the format of buf[0..len) and decodes it.  Returns 0 or:
  * QW_ETRUNC (shorter than the header says), QW_EOVERSIZE (n > cap),
  * QW_ECOUNT (p differs from b->p), QW_ENUMBER (a bad number),
- * QW_ERANGE (+-Inf, or a time outside int64 ns), QW_EFORMAT (anything
+ * QW_ERANGE (+-Inf, or |time| > QW_WIRE_TIME_MAX), QW_EFORMAT (anything
  * else malformed, including an empty frame).  On error b->n = 0. */
 int qw_wire_decode(const void *buf, size_t len, struct qw_wire_batch *b);
 
 /* Encoders, for the simulator, record tests and benchmarks.  Each writes at
- * most cap bytes and returns the length, or 0 if cap is too small. */
+ * most cap bytes and returns the length, or 0 if cap is too small, a time
+ * is not finite or beyond QW_WIRE_TIME_MAX, or a value is +-Inf (which the decoder
+ * refuses).  NaN is written as missing (binary: as is; text: an empty
+ * field; JSON: null).  Text and JSON use %.17g (exact round trip), carry no
+ * newline and are NUL-terminated (so they need cap > length). */
 size_t qw_wire_encode_binary(void *buf, size_t cap, size_t p, size_t n,
 			     uint64_t seq, const double *t, const double *x);
 size_t qw_wire_encode_text(char *buf, size_t cap, size_t p, double t,

@@ -1,0 +1,260 @@
+/* replay.c: `quadwatch replay -c FILE [--group G] [--json] [--scores OUT]
+ * [--report OUT.html] [--labels COLUMN] [-q] INPUT...` (quadwatch-replay(1)).
+ *
+ * Builds one detector per configured group from the same configuration
+ * the daemon reads (qw_detector_alloc on each group's params, no
+ * checkpoint), plays every input in the order given as one stream
+ * (replay_input.c), then writes the summary (replay_out.c) and the report
+ * (replay_report.c).  Deterministic: no clock enters the results.
+ *
+ * Workload: a 10^6-reading file of a 4-channel group plays in about a
+ * second; memory grows by one struct replay_point (48 bytes) per scored
+ * reading, kept for the quantiles and the report. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "cmd.h"
+#include "log.h"
+#include "replay.h"
+#include "wire.h"
+
+static void rp_usage(FILE *f)
+{
+	fprintf(f,
+		"usage: quadwatch replay -c FILE [--group G] [--json] "
+		"[--scores OUT.csv]\n"
+		"                        [--report OUT.html] [--labels COLUMN] "
+		"[-q] INPUT...\n"
+		"  -c FILE           configuration (quadwatch.ini(5))\n"
+		"  --group G         play only group G\n"
+		"  --json            one JSON summary object on stdout\n"
+		"  --scores OUT.csv  one row per scored reading\n"
+		"  --report OUT.html self-contained HTML report\n"
+		"  --labels COLUMN   0/1 truth column of the CSV inputs\n"
+		"  -q                no progress, errors only\n"
+		"INPUT: CSV files or captures from quadwatch record.\n");
+}
+
+/* The value after option argv[*i]; NULL (usage printed) when absent. */
+static const char *rp_value(int argc, char **argv, int *i)
+{
+	if (*i + 1 >= argc) {
+		fprintf(stderr, "quadwatch replay: %s needs a value\n",
+			argv[*i]);
+		return NULL;
+	}
+	return argv[++*i];
+}
+
+/* Options may come before, between or after the inputs ("--" ends the
+ * options).  o->inputs is allocated (argc entries); 0 or an exit code. */
+static int rp_args(int argc, char **argv, struct replay_opts *o)
+{
+	int i, opts = 1;
+
+	memset(o, 0, sizeof *o);
+	o->inputs = calloc((size_t)argc, sizeof *o->inputs);
+	if (o->inputs == NULL)
+		return QW_EXIT_FAIL;
+	for (i = 1; i < argc; i++) {
+		const char *a = argv[i];
+		const char **dst = NULL;
+
+		if (!opts || a[0] != '-' || a[1] == '\0') {
+			o->inputs[o->ninputs++] = argv[i];
+			continue;
+		}
+		if (strcmp(a, "--") == 0) {
+			opts = 0;
+		} else if (strcmp(a, "-h") == 0 || strcmp(a, "--help") == 0) {
+			rp_usage(stdout);
+			return -1;
+		} else if (strcmp(a, "--json") == 0) {
+			o->json = 1;
+		} else if (strcmp(a, "-q") == 0) {
+			o->quiet = 1;
+		} else if (strcmp(a, "-c") == 0) {
+			dst = &o->config;
+		} else if (strcmp(a, "--group") == 0) {
+			dst = &o->group;
+		} else if (strcmp(a, "--scores") == 0) {
+			dst = &o->scores;
+		} else if (strcmp(a, "--report") == 0) {
+			dst = &o->report;
+		} else if (strcmp(a, "--labels") == 0) {
+			dst = &o->labels;
+		} else {
+			fprintf(stderr, "quadwatch replay: unknown option "
+				"'%s'\n", a);
+			rp_usage(stderr);
+			return QW_EXIT_USAGE;
+		}
+		if (dst != NULL && (*dst = rp_value(argc, argv, &i)) == NULL)
+			return QW_EXIT_USAGE;
+	}
+	if (o->config == NULL || o->ninputs < 1) {
+		fprintf(stderr, "quadwatch replay: %s\n", o->config == NULL
+			? "-c FILE is required" : "no INPUT given");
+		rp_usage(stderr);
+		return QW_EXIT_USAGE;
+	}
+	return 0;
+}
+
+/* Decode buffer for captures: as the daemon's (run_batch_len). */
+static size_t rp_batch_len(const struct qw_config *c)
+{
+	size_t i, best = 0;
+
+	for (i = 0; i < c->ngroups; i++) {
+		size_t rec = sizeof(int64_t) + c->groups[i].p * sizeof(double);
+		size_t cap = c->max_frame > QW_WIRE_HEADER
+			     ? (c->max_frame - QW_WIRE_HEADER) / rec : 0;
+		size_t need = (cap < 1 ? 1 : cap) * (1 + c->groups[i].p);
+
+		if (need > best)
+			best = need;
+	}
+	return best;
+}
+
+static int rp_group_alloc(struct replay *rp, struct replay_group *g,
+			  const struct qw_group_conf *gc)
+{
+	size_t p = gc->p;
+
+	g->conf = gc;
+	g->open_trace = -1;
+	g->wanted = rp->o.group == NULL || strcmp(rp->o.group, gc->name) == 0;
+	g->det = qw_detector_alloc(&gc->params);
+	g->idx = calloc(p, sizeof *g->idx);
+	g->x = calloc(p, sizeof *g->x);
+	g->top_count = calloc(p, sizeof *g->top_count);
+	if (g->det == NULL || g->idx == NULL || g->x == NULL ||
+	    g->top_count == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	qw_labels_reset(&g->labels);
+	if (rp->o.report == NULL)
+		return 0;
+	g->ring_t = calloc(RP_TRACE_PRE, sizeof *g->ring_t);
+	g->ring_x = calloc(RP_TRACE_PRE * p, sizeof *g->ring_x);
+	g->traces = calloc(RP_TRACE_ALARMS, sizeof *g->traces);
+	if (g->ring_t == NULL || g->ring_x == NULL || g->traces == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	return 0;
+}
+
+static void rp_teardown(struct replay *rp)
+{
+	size_t i;
+
+	for (i = 0; rp->groups != NULL && i < rp->cfg.ngroups; i++) {
+		struct replay_group *g = &rp->groups[i];
+
+		qw_detector_free(g->det);
+		free(g->idx);
+		free(g->x);
+		free(g->top_count);
+		free(g->pts);
+		free(g->ring_t);
+		free(g->ring_x);
+		free(g->traces);
+	}
+	free(rp->groups);
+	free(rp->batch);
+	free(rp->alert_buf);
+	json_decref(rp->events);
+	if (rp->scores != NULL)
+		fclose(rp->scores);
+	qw_config_free(&rp->cfg);
+	free(rp->o.inputs);
+}
+
+/* Config, groups, buffers.  0 or an exit code (message printed). */
+static int rp_setup(struct replay *rp)
+{
+	char err[QW_CONFIG_ERR_MAX];
+	size_t i;
+
+	if (qw_config_load(rp->o.config, &rp->cfg, err, sizeof err) != 0) {
+		fprintf(stderr, "quadwatch replay: %s\n", err);
+		return QW_EXIT_USAGE;
+	}
+	if (rp->o.group != NULL && qw_config_group(&rp->cfg, rp->o.group)
+	    == NULL) {
+		fprintf(stderr, "quadwatch replay: --group %s: no [group %s] "
+			"in %s\n", rp->o.group, rp->o.group, rp->o.config);
+		return QW_EXIT_USAGE;
+	}
+	rp->groups = calloc(rp->cfg.ngroups, sizeof *rp->groups);
+	rp->batch_len = rp_batch_len(&rp->cfg);
+	rp->batch = malloc(rp->batch_len * sizeof *rp->batch);
+	rp->alert_buf = malloc(RP_ALERT_MAX);
+	rp->events = json_array();
+	if (rp->groups == NULL || rp->batch == NULL ||
+	    rp->alert_buf == NULL || rp->events == NULL)
+		goto nomem;
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		if (rp_group_alloc(rp, &rp->groups[i], &rp->cfg.groups[i]))
+			goto nomem;
+	return 0;
+nomem:
+	fprintf(stderr, "quadwatch replay: out of memory\n");
+	return QW_EXIT_FAIL;
+}
+
+/* Outputs after the stream: scores flushed, JSON or human summary,
+ * report.  0 or QW_EXIT_FAIL. */
+static int rp_outputs(struct replay *rp)
+{
+	int rc = 0;
+
+	if (rp->scores != NULL) {
+		if (fflush(rp->scores) != 0 || ferror(rp->scores)) {
+			qw_log_errno(QW_LOG_ERROR, "%s", rp->o.scores);
+			rc = QW_EXIT_FAIL;
+		}
+	}
+	if (rp->o.json ? qw_replay_json(rp) : qw_replay_human(rp, stdout))
+		rc = QW_EXIT_FAIL;
+	if (rp->o.report != NULL && qw_replay_report(rp, rp->o.report))
+		rc = QW_EXIT_FAIL;
+	if (fflush(stdout) != 0) {
+		qw_log_errno(QW_LOG_ERROR, "standard output");
+		rc = QW_EXIT_FAIL;
+	}
+	return rc;
+}
+
+int qw_cmd_replay(int argc, char **argv)
+{
+	struct replay rp;
+	int i, rc;
+
+	memset(&rp, 0, sizeof rp);
+	rc = rp_args(argc, argv, &rp.o);
+	if (rc != 0) {
+		free(rp.o.inputs);
+		return rc < 0 ? QW_EXIT_OK : rc;
+	}
+	if (rp.o.quiet)
+		qw_log_set_level(QW_LOG_ERROR);
+	rp.progress = !rp.o.quiet && isatty(STDERR_FILENO);
+	rp.started = qw_log_monotonic();
+	rp.next_progress = rp.started + RP_PROGRESS_EVERY;
+	rc = rp_setup(&rp);
+	if (rc == 0 && rp.o.scores != NULL)
+		rc = qw_replay_scores_open(&rp);
+	for (i = 0; rc == 0 && i < rp.o.ninputs; i++)
+		rc = qw_replay_input(&rp, rp.o.inputs[i]);
+	if (rc == 0) {
+		qw_replay_progress(&rp, 1);
+		qw_replay_finish(&rp);
+		rc = rp_outputs(&rp);
+	}
+	rp_teardown(&rp);
+	return rc;
+}

@@ -1,0 +1,244 @@
+/* replay_input.c: the inputs of `quadwatch replay`, each turned into
+ * readings for the groups it feeds.
+ *
+ * A capture (detected by its magic, capture.h) holds bus messages as
+ * `quadwatch record` received them: each payload is decoded with
+ * qw_wire_decode into a batch exactly as the daemon's run_message does,
+ * its topic naming the group.  Any other file is CSV (csvin.h): each
+ * selected group whose channels all have columns is fed every row.
+ *
+ * Workload: one pass per file; the only buffers are the group's x[p] and
+ * the decode batch sized from max_frame, both allocated at setup. */
+#include <stdio.h>
+#include <string.h>
+
+#include "capture.h"
+#include "cmd.h"
+#include "csvin.h"
+#include "log.h"
+#include "replay.h"
+#include "wire.h"
+
+const char *const qw_replay_cause_names[RP_NCAUSES] = {
+	[RP_CSV_ROW] = "malformed_row",
+	[RP_UNKNOWN_TOPIC] = "unknown_topic",
+	[RP_WRONG_COUNT] = "wrong_count",
+	[RP_TRUNCATED] = "truncated",
+	[RP_BAD_NUMBER] = "bad_number",
+	[RP_NONFINITE] = "nonfinite",
+	[RP_OVERSIZE] = "oversize",
+	[RP_MALFORMED] = "malformed",
+	[RP_TIME] = "time",
+	[RP_OVERFLOW] = "overflow",
+	[RP_EMPTY] = "empty",
+};
+
+/* Maps each wanted group onto the CSV's columns.  A group that lacks a
+ * column is an error when it was asked for by --group, or when no group
+ * at all can be played; otherwise it is noted and skipped for this file.
+ * 0 or QW_EXIT_USAGE (message printed). */
+static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
+		      const char *path)
+{
+	char err[QW_CSVIN_ERR_MAX], why[4 * QW_CSVIN_ERR_MAX] = "";
+	size_t i, nmapped = 0, used = 0;
+
+	for (i = 0; i < rp->cfg.ngroups; i++) {
+		struct replay_group *g = &rp->groups[i];
+
+		g->mapped = 0;
+		if (!g->wanted)
+			continue;
+		if (qw_csvin_map(c, g->conf->name, g->conf->channels,
+				 g->conf->p, g->idx, err, sizeof err) == 0) {
+			g->mapped = 1;
+			g->played = 1;
+			nmapped++;
+			continue;
+		}
+		if (rp->o.group != NULL) {
+			fprintf(stderr, "quadwatch replay: %s\n", err);
+			return QW_EXIT_USAGE;
+		}
+		qw_log(QW_LOG_INFO, "%s (group %s not played from this file)",
+		       err, g->conf->name);
+		if (used + 3 < sizeof why) {
+			int n = snprintf(why + used, sizeof why - used,
+					 "\n  %s", err);
+			used += n > 0 ? (size_t)n : 0;
+			if (used >= sizeof why)
+				used = sizeof why - 1;
+		}
+	}
+	if (nmapped == 0) {
+		fprintf(stderr, "quadwatch replay: %s: no group has all its "
+			"channels in this file:%s\n", path, why);
+		return QW_EXIT_USAGE;
+	}
+	if (rp->o.labels != NULL &&
+	    qw_csvin_label(c, rp->o.labels, err, sizeof err) != 0) {
+		fprintf(stderr, "quadwatch replay: %s\n", err);
+		return QW_EXIT_USAGE;
+	}
+	return 0;
+}
+
+/* Every row to every mapped group.  0 or QW_EXIT_FAIL. */
+static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
+{
+	const struct qw_csvin_row *row;
+	uint64_t n = 0;
+	size_t i, k;
+	int rc;
+
+	while ((rc = qw_csvin_next(c, &row)) == 1) {
+		for (i = 0; i < rp->cfg.ngroups; i++) {
+			struct replay_group *g = &rp->groups[i];
+
+			if (!g->mapped)
+				continue;
+			for (k = 0; k < g->conf->p; k++)
+				g->x[k] = row->x[g->idx[k]];
+			qw_replay_reading(rp, g, row->time, g->x, row->label);
+		}
+		if (++n % RP_PROGRESS_CHECK == 0) {
+			qw_csvin_progress(c, &rp->cur_done, &rp->cur_total);
+			qw_replay_progress(rp, 0);
+		}
+	}
+	if (rc < 0) {
+		qw_replay_progress(rp, 1);
+		fprintf(stderr, "quadwatch replay: %s\n", qw_csvin_error(c));
+		return QW_EXIT_FAIL;
+	}
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		if (rp->groups[i].mapped)
+			rp->groups[i].rejected[RP_CSV_ROW] += qw_csvin_bad(c);
+	rp->csv_bad += qw_csvin_bad(c);
+	return 0;
+}
+
+static int rp_csv(struct replay *rp, const char *path)
+{
+	struct qw_csvin *c = NULL;
+	char err[QW_CSVIN_ERR_MAX];
+	int rc = qw_csvin_open(path, NULL, NULL, &c, err, sizeof err);
+
+	if (rc != 0) {
+		fprintf(stderr, "quadwatch replay: %s\n", err);
+		return rc == QW_EFORMAT ? QW_EXIT_USAGE : QW_EXIT_FAIL;
+	}
+	rc = rp_csv_map(rp, c, path);
+	if (rc == 0)
+		rc = rp_csv_rows(rp, c);
+	qw_csvin_close(c);
+	return rc;
+}
+
+/* The cause of a qw_wire_decode failure (as the daemon's). */
+static int rp_wire_cause(int rc)
+{
+	switch (rc) {
+	case QW_ECOUNT: return RP_WRONG_COUNT;
+	case QW_ETRUNC: return RP_TRUNCATED;
+	case QW_ENUMBER: return RP_BAD_NUMBER;
+	case QW_ERANGE: return RP_NONFINITE;
+	case QW_EOVERSIZE: return RP_OVERSIZE;
+	default: return RP_MALFORMED;
+	}
+}
+
+static struct replay_group *rp_topic(struct replay *rp, const char *topic,
+				     size_t tlen)
+{
+	size_t i;
+
+	for (i = 0; i < rp->cfg.ngroups; i++) {
+		const char *name = rp->cfg.groups[i].name;
+
+		if (strlen(name) == tlen && memcmp(name, topic, tlen) == 0)
+			return &rp->groups[i];
+	}
+	return NULL;
+}
+
+/* One captured message, as run_message in the daemon. */
+static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
+{
+	struct replay_group *g = rp_topic(rp, rec->topic, rec->tlen);
+	struct qw_wire_batch b;
+	size_t k;
+	int rc;
+
+	if (g == NULL) {
+		rp->unknown_topic++;
+		return;
+	}
+	if (!g->wanted)
+		return;
+	g->played = 1;
+	memset(&b, 0, sizeof b);
+	b.p = g->conf->p;
+	b.cap = rp->batch_len / (1 + b.p);
+	b.t = rp->batch;
+	b.x = rp->batch + b.cap;
+	rc = qw_wire_decode(rec->payload, rec->plen, &b);
+	if (rc != 0) {
+		g->rejected[rp_wire_cause(rc)]++;
+		return;
+	}
+	for (k = 0; k < b.n; k++)
+		qw_replay_reading(rp, g, b.t[k], b.x + k * b.p, -1);
+}
+
+static int rp_capture(struct replay *rp, const char *path)
+{
+	struct qw_capture_reader *r = NULL;
+	const struct qw_capture_rec *rec;
+	uint64_t n = 0;
+	int rc = qw_capture_reader_open(path, rp->cfg.max_frame, &r);
+
+	if (rc != 0) {
+		fprintf(stderr, "quadwatch replay: %s: %s\n", path,
+			qw_strerror(rc));
+		return QW_EXIT_FAIL;
+	}
+	while ((rc = qw_capture_reader_next(r, &rec)) == 1) {
+		rp_message(rp, rec);
+		if (++n % (RP_PROGRESS_CHECK / 64) == 0) {
+			qw_capture_reader_progress(r, &rp->cur_done,
+						   &rp->cur_total);
+			qw_replay_progress(rp, 0);
+		}
+	}
+	qw_capture_reader_close(r);
+	if (rc == QW_ETRUNC) {
+		/* a recording stopped hard: keep what was whole */
+		qw_log(QW_LOG_WARN, "%s: the last record is cut short; the "
+		       "%llu whole records before it were played", path,
+		       (unsigned long long)n);
+		return 0;
+	}
+	if (rc < 0) {
+		qw_replay_progress(rp, 1);
+		fprintf(stderr, "quadwatch replay: %s: after record %llu: "
+			"%s\n", path, (unsigned long long)n, qw_strerror(rc));
+		return QW_EXIT_FAIL;
+	}
+	return 0;
+}
+
+int qw_replay_input(struct replay *rp, const char *path)
+{
+	int rc = strcmp(path, "-") == 0 ? 0 : qw_capture_probe(path);
+
+	rp->cur_name = path;
+	rp->cur_done = 0;
+	rp->cur_total = 0;
+	if (rc < 0) {
+		fprintf(stderr, "quadwatch replay: %s: ", path);
+		perror(NULL);
+		return QW_EXIT_FAIL;
+	}
+	return rc == 1 ? rp_capture(rp, path) : rp_csv(rp, path);
+}

@@ -1,0 +1,253 @@
+/* replay_out.c: the figures of a replay, as one JSON object (--json) or
+ * as the human summary (default), per group and in total.
+ *
+ * Definitions (quadwatch-replay(1) documents them): "eligible" readings
+ * are scored readings after warm-up (the model had learned `warmup`
+ * readings, so an alarm was possible); days =
+ * eligible / rate / 86400 at the configured nominal rate; expected_alarms
+ * = alarms_per_day * days.  Tuning help: the empirical (1 - alpha)
+ * quantile of the eligible full-channel scores is the limit that this
+ * recording would have exceeded at the configured per-reading alpha; the
+ * empirical alpha quantile of the eligible p-values is the alpha the model
+ * should have used for that.  Calibration: the Kolmogorov-Smirnov distance
+ * of the eligible p-values from uniform.
+ *
+ * Workload: once per replay; two sorts of at most the scored readings. */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "log.h"
+#include "replay.h"
+
+static void rp_rejected(const struct replay_group *g, struct replay_stats *st)
+{
+	const struct qw_counters *c = qw_detector_counters(g->det);
+
+	memcpy(st->rejected, g->rejected, sizeof st->rejected);
+	st->rejected[RP_NONFINITE] += c->rej_nonfinite;
+	st->rejected[RP_TIME] += c->rej_time;
+	st->rejected[RP_OVERFLOW] += c->rej_overflow;
+	st->rejected[RP_EMPTY] += c->rej_empty;
+}
+
+/* Tuning and calibration from the kept points.  0 or QW_ENOMEM. */
+static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
+{
+	double *qf = malloc((g->npts + 1) * sizeof *qf);
+	double *pv = malloc((g->npts + 1) * sizeof *pv);
+	size_t i, nq = 0, np = 0;
+
+	if (qf == NULL || pv == NULL) {
+		free(qf);
+		free(pv);
+		return QW_ERROR(QW_ENOMEM);
+	}
+	for (i = 0; i < g->npts; i++) {
+		const struct replay_point *pt = &g->pts[i];
+
+		if (!pt->warm)
+			continue;
+		if (pt->dof == g->conf->p && isfinite(pt->q))
+			qf[nq++] = pt->q;
+		if (pt->pvalue >= 0.0 && pt->pvalue <= 1.0)
+			pv[np++] = pt->pvalue;
+	}
+	st->tune_n = nq;
+	st->tune_limit = qw_summary_quantile(qf, nq, 1.0 - st->alpha);
+	st->tune_alpha = qw_summary_quantile(pv, np, st->alpha);
+	st->tune_apd = g->conf->params.alarms_per_day * st->tune_alpha
+		       / st->alpha;
+	st->ks = qw_summary_ks_uniform(pv, np);
+	st->ks_crit = qw_summary_ks_crit05(np);
+	st->ks_n = np;
+	free(qf);
+	free(pv);
+	return 0;
+}
+
+int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
+		    struct replay_stats *st)
+{
+	const struct qw_counters *c = qw_detector_counters(g->det);
+	const struct qw_params *par = &g->conf->params;
+	size_t i;
+
+	(void)rp;
+	memset(st, 0, sizeof *st);
+	st->readings = c->readings;
+	st->scored = c->scored;
+	st->exceedances = c->exceedances;
+	st->alarms = c->alarms;
+	for (i = 0; i < g->npts; i++)
+		st->eligible += g->pts[i].warm;
+	st->span_s = c->readings > 0 ? g->t_last - g->t_first : 0.0;
+	st->days = (double)st->eligible / par->rate / QW_SECONDS_PER_DAY;
+	st->alarms_per_day = st->days > 0 ? (double)st->alarms / st->days
+			     : NAN;
+	st->expected = par->alarms_per_day * st->days;
+	st->alpha = qw_detector_alpha(g->det);
+	st->limit = qw_detector_steady_limit(g->det);
+	st->limit_end = qw_detector_limit(g->det);
+	st->dof = (unsigned)g->conf->p;
+	rp_rejected(g, st);
+	qw_labels_metrics(&g->labels, &st->lm);
+	return rp_tuning(g, st);
+}
+
+/* ---- JSON ---------------------------------------------------------------- */
+
+static json_t *jnum(double v)
+{
+	return isfinite(v) ? json_real(v) : json_null();
+}
+
+static void jset_u(json_t *o, const char *k, uint64_t v)
+{
+	json_object_set_new(o, k, json_integer((json_int_t)v));
+}
+
+static void rp_json_labels(json_t *o, const struct qw_label_metrics *m)
+{
+	json_object_set_new(o, "detection_rate", jnum(m->detection_rate));
+	json_object_set_new(o, "false_alarm_rate", jnum(m->false_alarm_rate));
+	json_object_set_new(o, "precision", jnum(m->precision));
+	json_object_set_new(o, "f1", jnum(m->f1));
+	json_object_set_new(o, "mean_delay", jnum(m->mean_delay));
+}
+
+static json_t *rp_json_group(const struct replay *rp,
+			     const struct replay_group *g,
+			     const struct replay_stats *st)
+{
+	json_t *o = json_object(), *tune = json_object();
+	json_t *top = json_object(), *rej = json_object();
+	size_t i;
+
+	jset_u(o, "readings", st->readings);
+	jset_u(o, "scored", st->scored);
+	jset_u(o, "eligible", st->eligible);
+	jset_u(o, "alarms", st->alarms);
+	jset_u(o, "exceedances", st->exceedances);
+	json_object_set_new(o, "limit", jnum(st->limit));
+	json_object_set_new(o, "limit_end", jnum(st->limit_end));
+	json_object_set_new(o, "alpha", jnum(st->alpha));
+	jset_u(o, "dof", st->dof);
+	json_object_set_new(o, "expected_alarms", jnum(st->expected));
+	json_object_set_new(o, "days", jnum(st->days));
+	json_object_set_new(o, "alarms_per_day", jnum(st->alarms_per_day));
+	json_object_set_new(o, "span_s", jnum(st->span_s));
+	json_object_set_new(tune, "limit", jnum(st->tune_limit));
+	json_object_set_new(tune, "alpha", jnum(st->tune_alpha));
+	json_object_set_new(tune, "alarms_per_day", jnum(st->tune_apd));
+	jset_u(tune, "n", st->tune_n);
+	/* at least 1/alpha scores: the quantile lies inside the data */
+	json_object_set_new(tune, "sufficient",
+			    json_boolean((double)st->tune_n * st->alpha >= 1));
+	json_object_set_new(tune, "ks", jnum(st->ks));
+	json_object_set_new(tune, "ks_crit05", jnum(st->ks_crit));
+	jset_u(tune, "ks_n", st->ks_n);
+	json_object_set_new(o, "tuning", tune);
+	for (i = 0; i < g->conf->p; i++)
+		if (g->top_count[i] > 0)
+			jset_u(top, g->conf->channels[i], g->top_count[i]);
+	json_object_set_new(o, "top_channels", top);
+	for (i = 0; i < RP_NCAUSES; i++)
+		jset_u(rej, qw_replay_cause_names[i], st->rejected[i]);
+	json_object_set_new(o, "rejected", rej);
+	if (rp->o.labels != NULL)
+		rp_json_labels(o, &st->lm);
+	return o;
+}
+
+/* Sums the label counters of the played groups into *sum. */
+static void rp_labels_sum(const struct replay *rp, struct qw_labels *sum)
+{
+	size_t i;
+
+	qw_labels_reset(sum);
+	for (i = 0; i < rp->cfg.ngroups; i++) {
+		const struct qw_labels *l = &rp->groups[i].labels;
+
+		sum->events += l->events;
+		sum->detected += l->detected;
+		sum->delay_sum += l->delay_sum;
+		sum->negatives += l->negatives;
+		sum->neg_alarmed += l->neg_alarmed;
+		sum->positives += l->positives;
+		sum->alarms += l->alarms;
+		sum->true_alarms += l->true_alarms;
+	}
+}
+
+/* Top level: totals over groups; limit, alpha and dof of the first
+ * played group. */
+static void rp_json_top(const struct replay *rp, json_t *o,
+			const struct replay_stats *tot, int first_set)
+{
+	struct qw_labels sum;
+	struct qw_label_metrics m;
+
+	jset_u(o, "readings", tot->readings);
+	jset_u(o, "scored", tot->scored);
+	jset_u(o, "eligible", tot->eligible);
+	jset_u(o, "alarms", tot->alarms);
+	jset_u(o, "exceedances", tot->exceedances);
+	json_object_set_new(o, "limit", first_set ? jnum(tot->limit)
+			    : json_null());
+	json_object_set_new(o, "alpha", first_set ? jnum(tot->alpha)
+			    : json_null());
+	json_object_set_new(o, "dof", first_set ? json_integer(tot->dof)
+			    : json_null());
+	json_object_set_new(o, "expected_alarms", jnum(tot->expected));
+	jset_u(o, "malformed_rows", rp->csv_bad);
+	jset_u(o, "unknown_topic", rp->unknown_topic);
+	jset_u(o, "events_dropped", rp->events_dropped);
+	if (rp->o.labels != NULL) {
+		rp_labels_sum(rp, &sum);
+		qw_labels_metrics(&sum, &m);
+		rp_json_labels(o, &m);
+	}
+}
+
+int qw_replay_json(const struct replay *rp)
+{
+	json_t *o = json_object(), *groups = json_object();
+	struct replay_stats st, tot;
+	int first = 0, rc = 0;
+	size_t i;
+
+	memset(&tot, 0, sizeof tot);
+	for (i = 0; i < rp->cfg.ngroups && rc == 0; i++) {
+		const struct replay_group *g = &rp->groups[i];
+
+		if (!g->played)
+			continue;
+		rc = qw_replay_stats(rp, g, &st);
+		if (!first) {
+			tot.limit = st.limit;
+			tot.alpha = st.alpha;
+			tot.dof = st.dof;
+			first = 1;
+		}
+		tot.readings += st.readings;
+		tot.scored += st.scored;
+		tot.eligible += st.eligible;
+		tot.alarms += st.alarms;
+		tot.exceedances += st.exceedances;
+		tot.expected += st.expected;
+		json_object_set_new(groups, g->conf->name,
+				    rp_json_group(rp, g, &st));
+	}
+	rp_json_top(rp, o, &tot, first);
+	json_object_set_new(o, "groups", groups);
+	json_object_set(o, "events", rp->events);
+	if (rc == 0 && json_dumpf(o, stdout, JSON_INDENT(2) | JSON_REAL_PRECISION(17)) != 0)
+		rc = QW_ERROR(QW_EIO);
+	if (rc == 0)
+		putchar('\n');
+	json_decref(o);
+	if (rc != 0)
+		qw_log(QW_LOG_ERROR, "summary: %s", qw_strerror(rc));
+	return rc;
+}

@@ -1,0 +1,224 @@
+/* replay_play.c: one reading through the detector, as in the daemon.
+ *
+ * qw_replay_reading is the replay twin of the daemon's run_reading:
+ * qw_detector_add, then on a raise or clear the alert from
+ * qw_verdict_fill, encoded by qw_alert_encode (the bytes the daemon would
+ * publish) and kept for --json.  Around that it keeps what the summary
+ * and report need: one struct replay_point per scored reading, the label
+ * state machine, the count of alarms by top channel, the --scores row,
+ * and (with --report) the traces of the top channels around the alarms
+ * with the highest raise scores.
+ *
+ * Workload: per reading O(p) besides the detector, plus one p-value (a
+ * GSL F tail, ~1 us); the point array grows by doubling (amortised O(1),
+ * log2(n) reallocations in a whole replay). */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "log.h"
+#include "replay.h"
+#include "verdict.h"
+
+int qw_replay_scores_open(struct replay *rp)
+{
+	rp->scores = fopen(rp->o.scores, "w");
+	if (rp->scores == NULL) {
+		qw_log_errno(QW_LOG_ERROR, "--scores %s", rp->o.scores);
+		return 1;
+	}
+	fputs("time,group,score,limit,pvalue,alarm,top\n", rp->scores);
+	return 0;
+}
+
+static void rp_event(struct replay *rp, struct replay_group *g, double t,
+		     const struct qw_result *res)
+{
+	struct qw_alert a;
+	size_t len;
+	json_t *obj;
+
+	qw_verdict_fill(&a, g->conf, t, res);
+	if (res->event == QW_EVENT_RAISE && a.ncontrib > 0)
+		g->top_count[a.contrib[0].channel]++;
+	if (json_array_size(rp->events) >= RP_EVENTS_MAX) {
+		rp->events_dropped++;
+		return;
+	}
+	len = qw_alert_encode(rp->alert_buf, RP_ALERT_MAX, &a);
+	obj = len > 0 ? json_loadb(rp->alert_buf, len, 0, NULL) : NULL;
+	if (obj == NULL || json_array_append_new(rp->events, obj) != 0)
+		rp->events_dropped++;
+}
+
+static void rp_point(struct replay_group *g, double t,
+		     const struct qw_result *res, double pv, int warm)
+{
+	struct replay_point *pt;
+
+	if (g->npts == g->cap && !g->pts_full) {
+		size_t cap = g->cap ? 2 * g->cap : 4096;
+		void *np = realloc(g->pts, cap * sizeof *g->pts);
+
+		if (np == NULL) {
+			g->pts_full = 1;
+			qw_log(QW_LOG_ERROR, "group %s: out of memory: later "
+			       "scores not kept for the summary",
+			       g->conf->name);
+		} else {
+			g->pts = np;
+			g->cap = cap;
+		}
+	}
+	if (g->pts_full)
+		return;
+	pt = &g->pts[g->npts++];
+	pt->t = t;
+	pt->q = res->q;
+	pt->limit = res->limit;
+	pt->pvalue = pv;
+	pt->dof = res->dof;
+	pt->over = (unsigned char)(res->over != 0);
+	pt->in_alarm = (unsigned char)(res->in_alarm != 0);
+	pt->warm = (unsigned char)(warm != 0);
+}
+
+static void rp_scores_row(struct replay *rp, const struct replay_group *g,
+			  double t, const struct qw_result *res, double pv)
+{
+	const char *top = res->over && res->ncontrib > 0
+			  ? g->conf->channels[res->contrib[0].channel] : "";
+
+	fprintf(rp->scores, "%.6f,%s,%.10g,%.10g,%.6g,%d,%s\n", t,
+		g->conf->name, res->q, res->limit, pv, res->in_alarm != 0,
+		top);
+}
+
+/* Report traces: a raise opens the slot of the lowest-scoring alarm kept
+ * (when this one scores higher), filled with the ring's readings before
+ * it; later readings fill it up to RP_TRACE_LEN. */
+static void rp_trace_open(struct replay_group *g, double t,
+			  const struct qw_result *res)
+{
+	struct replay_trace *tr = NULL;
+	size_t i, k, lo = 0;
+
+	for (i = 0; i < RP_TRACE_ALARMS; i++) {
+		if (!g->traces[i].used) {
+			tr = &g->traces[i];
+			break;
+		}
+		if (g->traces[i].score < g->traces[lo].score)
+			lo = i;
+	}
+	if (tr == NULL && res->q > g->traces[lo].score)
+		tr = &g->traces[lo];
+	g->open_trace = -1;
+	if (tr == NULL || res->ncontrib == 0)
+		return;
+	memset(tr, 0, sizeof *tr);
+	tr->used = 1;
+	tr->score = res->q;
+	tr->t_raise = t;
+	tr->nchan = res->ncontrib < RP_TRACE_CHANNELS ? res->ncontrib
+		    : RP_TRACE_CHANNELS;
+	for (k = 0; k < tr->nchan; k++)
+		tr->chan[k] = res->contrib[k].channel;
+	for (i = 0; i < g->ring_n; i++) {
+		size_t j = (g->ring_head + RP_TRACE_PRE - g->ring_n + i)
+			   % RP_TRACE_PRE;
+
+		tr->t[i] = g->ring_t[j];
+		for (k = 0; k < tr->nchan; k++)
+			tr->x[k][i] = g->ring_x[j * g->conf->p + tr->chan[k]];
+	}
+	tr->n = tr->at = g->ring_n;
+	g->open_trace = (long)(tr - g->traces);
+}
+
+static void rp_trace_feed(struct replay_group *g, double t, const double *x,
+			  const struct qw_result *res)
+{
+	size_t k, p = g->conf->p;
+
+	if (res->event == QW_EVENT_RAISE)
+		rp_trace_open(g, t, res);
+	if (g->open_trace >= 0) {
+		struct replay_trace *tr = &g->traces[g->open_trace];
+
+		tr->t[tr->n] = t;
+		for (k = 0; k < tr->nchan; k++)
+			tr->x[k][tr->n] = x[tr->chan[k]];
+		if (++tr->n == RP_TRACE_LEN)
+			g->open_trace = -1;
+	}
+	g->ring_t[g->ring_head] = t;
+	memcpy(g->ring_x + g->ring_head * p, x, p * sizeof *x);
+	g->ring_head = (g->ring_head + 1) % RP_TRACE_PRE;
+	if (g->ring_n < RP_TRACE_PRE)
+		g->ring_n++;
+}
+
+void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
+		       const double *x, int label)
+{
+	struct qw_result res;
+	double pv;
+	/* the core's warm-up test, taken before the reading is learned */
+	int warm = qw_ewcov_count(qw_detector_model(g->det))
+		   >= g->conf->params.warmup;
+
+	(void)qw_detector_add(g->det, t, x, &res); /* refusals: counted */
+	rp->readings++;
+	if (qw_detector_counters(g->det)->readings == 1)
+		g->t_first = t;
+	g->t_last = t;
+	if (res.event != QW_EVENT_NONE)
+		rp_event(rp, g, t, &res);
+	if (res.scored) {
+		pv = qw_limit_pvalue(res.q, res.dof, res.nu, res.scale);
+		rp_point(g, t, &res, pv, warm);
+		if (rp->scores != NULL)
+			rp_scores_row(rp, g, t, &res, pv);
+	}
+	if (label >= 0)
+		g->has_labels = 1;
+	qw_labels_add(&g->labels, label, res.event, res.in_alarm);
+	if (g->traces != NULL)
+		rp_trace_feed(g, t, x, &res);
+}
+
+void qw_replay_progress(struct replay *rp, int last)
+{
+	double now, secs;
+
+	if (!rp->progress)
+		return;
+	if (last) {
+		if (rp->progress_shown)
+			fputs("\r\033[K", stderr);
+		rp->progress_shown = 0;
+		return;
+	}
+	now = qw_log_monotonic();
+	if (now < rp->next_progress)
+		return;
+	rp->next_progress = now + RP_PROGRESS_EVERY;
+	secs = now - rp->started;
+	fprintf(stderr, "\r\033[Kreplay: %s", rp->cur_name);
+	if (rp->cur_total > 0)
+		fprintf(stderr, " %3.0f%%",
+			100.0 * (double)rp->cur_done / (double)rp->cur_total);
+	fprintf(stderr, ", %llu readings, %.0f readings/s",
+		(unsigned long long)rp->readings,
+		secs > 0 ? (double)rp->readings / secs : 0.0);
+	rp->progress_shown = 1;
+}
+
+void qw_replay_finish(struct replay *rp)
+{
+	size_t i;
+
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		qw_labels_finish(&rp->groups[i].labels);
+}

@@ -1,0 +1,652 @@
+/* csvin.c: the replay CSV reader (see csvin.h).
+ *
+ * libcsv does the quoting; this file feeds it and turns fields into
+ * numbers.  To hold at most one completed row, the chunk just read is fed
+ * to csv_parse in slices that end at the next CR or LF: libcsv ends a row
+ * only at such a byte, so a slice completes at most one row, and the next
+ * slice is fed only after the caller has taken it.  The slices also give
+ * the line count (LF, CR LF and a lone CR each end a line) that messages
+ * carry.  Fields of columns nobody mapped are skipped unread.
+ *
+ * Workload: replay of recordings of up to millions of rows and tens to
+ * hundreds of columns; per row, one libcsv pass over the bytes and one
+ * qw_num_double per mapped cell.  Memory: the chunk, the header names, one
+ * row of doubles, and libcsv's field buffer (bounded by
+ * QW_CSVIN_FIELD_MAX). */
+#include "csvin.h"
+
+#include <csv.h>
+#include <ctype.h>
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "log.h"
+#include "num.h"
+#include "quadwatch.h"
+
+#define CSVIN_BOM "\xEF\xBB\xBF" /* UTF-8 byte order mark */
+#define CSVIN_BOM_LEN 3u
+#define CSVIN_SHOW_MAX 40  /* bytes of a bad field quoted in a message */
+#define CSVIN_NO_COL SIZE_MAX
+#define CSVIN_LIBCSV_FIELD_BEGUN 2 /* libcsv.c's pstate inside a field
+				      (stable since libcsv 3.0) */
+
+struct qw_csvin {
+	FILE *fp;
+	int own_fp;              /* 1: fclose at close */
+	char *name;              /* path, for messages */
+	struct csv_parser csv;
+	int csv_live;            /* csv_init succeeded */
+	unsigned char *chunk;    /* QW_CSVIN_CHUNK bytes */
+	size_t len, pos;         /* bytes in chunk, bytes fed */
+	int finished;            /* EOF reached and csv_fini done */
+	uint64_t done, total;    /* bytes read, file size (0 unknown) */
+	uint64_t line;           /* line of the bytes being fed, 1-based */
+	int prev_cr;             /* last slice ended with CR */
+
+	char **cols;             /* ncols header names */
+	size_t ncols, cols_cap;
+	int header_done;
+	unsigned char *use;      /* per column: 1 mapped (parsed), 0 not */
+	size_t label_col;        /* CSVIN_NO_COL when none */
+
+	double *x;               /* ncols values of the row being built */
+	size_t field;            /* fields seen in this row */
+	int first_empty;         /* field 0 was empty (blank line test) */
+	int row_bad;             /* a field failed; why says how */
+	char why[QW_CSVIN_ERR_MAX];
+	int ready;               /* row holds a completed, good row */
+	struct qw_csvin_row row;
+
+	uint64_t rows, bad;      /* returned, skipped */
+	int fatal;               /* enum qw_err of a fatal error, else 0 */
+	char error[QW_CSVIN_ERR_MAX];
+	qw_csvin_report_fn *report;
+	void *ctx;
+};
+
+/* ---- time ---------------------------------------------------------------- */
+
+/* Exactly n decimal digits at s into *out; 0 or -1. */
+static int csvin_digits(const char *s, size_t n, int *out)
+{
+	size_t i;
+	int v = 0;
+
+	for (i = 0; i < n; i++) {
+		if (!isdigit((unsigned char)s[i]))
+			return -1;
+		v = v * 10 + (s[i] - '0');
+	}
+	*out = v;
+	return 0;
+}
+
+/* Days from 1970-01-01 to y-m-d in the proleptic Gregorian calendar
+ * (H. Hinnant, "chrono-compatible low-level date algorithms",
+ * days_from_civil); y >= 0. */
+static int64_t csvin_days(int y, int m, int d)
+{
+	int era, yoe, doy, doe;
+
+	y -= m <= 2;
+	era = y / 400;
+	yoe = y - era * 400;
+	doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
+	doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+	return (int64_t)era * 146097 + doe - 719468;
+}
+
+static int csvin_mdays(int y, int m)
+{
+	static const int days[12] = {31, 28, 31, 30, 31, 30,
+				     31, 31, 30, 31, 30, 31};
+	int leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
+
+	return days[m - 1] + (m == 2 && leap);
+}
+
+/* [Z|+hh:mm|-hh:mm|+hhmm|-hhmm] at s[0..len): *off in seconds east. */
+static int csvin_zone(const char *s, size_t len, int *off)
+{
+	int sign, zh, zm;
+	size_t i = 3;
+
+	*off = 0;
+	if (len == 0)
+		return 0;
+	if (len == 1 && (s[0] == 'Z' || s[0] == 'z'))
+		return 0;
+	if (s[0] != '+' && s[0] != '-')
+		return -1;
+	sign = s[0] == '-' ? -1 : 1;
+	if (len < 5 || csvin_digits(s + 1, 2, &zh) != 0)
+		return -1;
+	if (s[i] == ':')
+		i++;
+	if (len != i + 2 || csvin_digits(s + i, 2, &zm) != 0 || zh > 23 ||
+	    zm > 59)
+		return -1;
+	*off = sign * (zh * 3600 + zm * 60);
+	return 0;
+}
+
+/* YYYY-MM-DD(T| )HH:MM:SS[.frac][zone] -> epoch seconds. */
+static int csvin_iso(const char *s, size_t len, double *t)
+{
+	int y, mo, d, h, mi, sec, off;
+	size_t i = 19, j; /* 19 = strlen("YYYY-MM-DDTHH:MM:SS") */
+	double frac = 0;
+
+	if (len < 19 || csvin_digits(s, 4, &y) || s[4] != '-' ||
+	    csvin_digits(s + 5, 2, &mo) || s[7] != '-' ||
+	    csvin_digits(s + 8, 2, &d) ||
+	    (s[10] != 'T' && s[10] != 't' && s[10] != ' ') ||
+	    csvin_digits(s + 11, 2, &h) || s[13] != ':' ||
+	    csvin_digits(s + 14, 2, &mi) || s[16] != ':' ||
+	    csvin_digits(s + 17, 2, &sec))
+		return QW_ERROR(QW_ENUMBER);
+	if (i < len && s[i] == '.') {
+		for (j = i + 1; j < len && isdigit((unsigned char)s[j]); j++)
+			;
+		if (j == i + 1 || qw_num_double(s + i, j - i, 0, 0, &frac))
+			return QW_ERROR(QW_ENUMBER);
+		i = j;
+	}
+	if (csvin_zone(s + i, len - i, &off) != 0 || mo < 1 || mo > 12 ||
+	    d < 1 || d > csvin_mdays(y, mo) || h > 23 || mi > 59 || sec > 59)
+		return QW_ERROR(QW_ENUMBER);
+	*t = (double)(csvin_days(y, mo, d) * 86400 + h * 3600 + mi * 60 + sec -
+		      off) + frac;
+	return 0;
+}
+
+int qw_csvin_time(const char *s, size_t len, double *t)
+{
+	while (len > 0 && isspace((unsigned char)*s)) {
+		s++;
+		len--;
+	}
+	while (len > 0 && isspace((unsigned char)s[len - 1]))
+		len--;
+	/* Four digits and a dash: a date ("1.2e-5" is a number). */
+	if (len >= 5 && s[4] == '-' && isdigit((unsigned char)s[0]) &&
+	    isdigit((unsigned char)s[1]) && isdigit((unsigned char)s[2]) &&
+	    isdigit((unsigned char)s[3]))
+		return csvin_iso(s, len, t);
+	if (qw_num_double(s, len, 0, 0, t) != 0)
+		return QW_ENUMBER;
+	return 0;
+}
+
+/* ---- messages ------------------------------------------------------------ */
+
+static void csvin_fatal(struct qw_csvin *c, int code, const char *fmt, ...)
+	__attribute__((format(printf, 3, 4)));
+static void csvin_fatal(struct qw_csvin *c, int code, const char *fmt, ...)
+{
+	va_list ap;
+	int k;
+
+	if (c->fatal != 0)
+		return;
+	c->fatal = code;
+	k = snprintf(c->error, sizeof c->error, "%s: ", c->name);
+	va_start(ap, fmt);
+	if (k > 0 && (size_t)k < sizeof c->error)
+		vsnprintf(c->error + k, sizeof c->error - (size_t)k, fmt, ap);
+	va_end(ap);
+}
+
+/* Records the first reason this row is bad. */
+static void csvin_bad_field(struct qw_csvin *c, const char *what,
+			    const char *s, size_t len)
+{
+	char show[CSVIN_SHOW_MAX + 1];
+	size_t i, n = len < CSVIN_SHOW_MAX ? len : CSVIN_SHOW_MAX;
+
+	if (c->row_bad)
+		return;
+	c->row_bad = 1;
+	for (i = 0; i < n; i++)
+		show[i] = isprint((unsigned char)s[i]) ? s[i] : '?';
+	show[n] = '\0';
+	snprintf(c->why, sizeof c->why, "%s '%s%s'", what, show,
+		 len > n ? "..." : "");
+}
+
+static void csvin_report(struct qw_csvin *c, const char *why)
+{
+	char msg[QW_CSVIN_ERR_MAX + 64];
+
+	c->bad++;
+	snprintf(msg, sizeof msg, "%s:%llu: %s", c->name,
+		 (unsigned long long)c->line, why);
+	if (c->report != NULL)
+		c->report(c->ctx, msg);
+	else if (c->bad <= QW_CSVIN_REPORT_MAX)
+		qw_log(QW_LOG_WARN, "%s%s", msg,
+		       c->bad == QW_CSVIN_REPORT_MAX
+			       ? " (further malformed rows are counted only)"
+			       : "");
+}
+
+/* ---- libcsv callbacks ---------------------------------------------------- */
+
+static void csvin_header_field(struct qw_csvin *c, const char *s,
+			       size_t len)
+{
+	char **cols;
+	size_t cap;
+
+	if (c->ncols >= QW_CSVIN_MAX_COLS) {
+		csvin_fatal(c, QW_EFORMAT, "more than %u columns",
+			    QW_CSVIN_MAX_COLS);
+		return;
+	}
+	if (c->ncols == c->cols_cap) {
+		cap = c->cols_cap ? 2 * c->cols_cap : 16;
+		cols = realloc(c->cols, cap * sizeof *cols);
+		if (cols == NULL) {
+			csvin_fatal(c, QW_ENOMEM, "out of memory");
+			return;
+		}
+		c->cols = cols;
+		c->cols_cap = cap;
+	}
+	c->cols[c->ncols] = strndup(s, len);
+	if (c->cols[c->ncols] == NULL) {
+		csvin_fatal(c, QW_ENOMEM, "out of memory");
+		return;
+	}
+	c->ncols++;
+}
+
+/* One cell of a data row, parsed only if its column is used. */
+static void csvin_cell(struct qw_csvin *c, size_t j, const char *s,
+		       size_t len)
+{
+	double v;
+	size_t i;
+
+	if (j == 0) {
+		c->first_empty = len == 0;
+		if (qw_csvin_time(s, len, &c->row.time) != 0)
+			csvin_bad_field(c, "time is neither epoch seconds nor "
+					"ISO 8601:", s, len);
+		return;
+	}
+	for (i = 0; i < len && isspace((unsigned char)s[i]); i++)
+		;
+	if (j == c->label_col) {
+		if (i == len)
+			c->row.label = -1;
+		else if (qw_num_double(s, len, 0, 0, &v) == 0 &&
+			 (v == 0.0 || v == 1.0))
+			c->row.label = (int)v;
+		else
+			csvin_bad_field(c, "label is not 0 or 1:", s, len);
+	}
+	if (!c->use[j])
+		return;
+	if (i == len) {
+		c->x[j] = NAN;
+	} else if (qw_num_double(s, len, 1, 1, &v) != 0 || isinf(v)) {
+		char what[QW_CONFIG_NAME_MAX + 64];
+
+		snprintf(what, sizeof what, "column '%.*s': not a finite "
+			 "number:", QW_CONFIG_NAME_MAX, c->cols[j]);
+		csvin_bad_field(c, what, s, len);
+	} else {
+		c->x[j] = v;
+	}
+}
+
+static void csvin_on_field(void *s, size_t len, void *data)
+{
+	struct qw_csvin *c = data;
+
+	if (c->fatal != 0)
+		return;
+	if (!c->header_done)
+		csvin_header_field(c, s, len);
+	else if (c->field < c->ncols)
+		csvin_cell(c, c->field, s, len);
+	c->field++;
+}
+
+static void csvin_header_end(struct qw_csvin *c)
+{
+	size_t j;
+
+	c->header_done = 1;
+	c->x = malloc(c->ncols * sizeof *c->x);
+	c->use = calloc(c->ncols, 1);
+	if (c->x == NULL || c->use == NULL) {
+		csvin_fatal(c, QW_ENOMEM, "out of memory");
+		return;
+	}
+	for (j = 0; j < c->ncols; j++)
+		c->x[j] = NAN;
+	c->row.x = c->x;
+}
+
+static void csvin_on_row(int term, void *data)
+{
+	struct qw_csvin *c = data;
+	char why[QW_CSVIN_ERR_MAX];
+
+	(void)term;
+	if (c->fatal != 0)
+		return;
+	if (!c->header_done) {
+		csvin_header_end(c);
+	} else if (c->field == 1 && c->first_empty && c->ncols > 1) {
+		/* a blank or whitespace-only line: not a row */
+	} else if (c->field != c->ncols) {
+		snprintf(why, sizeof why, "%zu fields, the header has %zu",
+			 c->field, c->ncols);
+		csvin_report(c, why);
+	} else if (c->row_bad) {
+		csvin_report(c, c->why);
+	} else {
+		c->x[0] = c->row.time;
+		c->row.line = c->line;
+		c->ready = 1;
+	}
+	c->field = 0;
+	c->row_bad = 0;
+	c->first_empty = 0;
+}
+
+/* ---- feeding ------------------------------------------------------------- */
+
+/* Feeds chunk[pos..] up to and including the next CR or LF. */
+static void csvin_feed(struct qw_csvin *c)
+{
+	const unsigned char *s = c->chunk + c->pos;
+	size_t k, n = c->len - c->pos;
+
+	for (k = 0; k < n && s[k] != '\n' && s[k] != '\r'; k++)
+		;
+	if (k < n)
+		k++; /* the terminator ends this slice */
+	if (csv_parse(&c->csv, s, k, csvin_on_field, csvin_on_row, c) != k) {
+		csvin_fatal(c, QW_ENOMEM, "%s", csv_strerror(csv_error(&c->csv)));
+		return;
+	}
+	if (csv_get_buffer_size(&c->csv) > QW_CSVIN_FIELD_MAX)
+		csvin_fatal(c, QW_EOVERSIZE, "line %llu: a field longer than "
+			    "%u bytes (an unterminated quote?)",
+			    (unsigned long long)c->line, QW_CSVIN_FIELD_MAX);
+	c->pos += k;
+	/* Line count: CR and LF end a line, except the LF of a CR LF. */
+	if (s[k - 1] == '\r') {
+		c->line++;
+		c->prev_cr = 1;
+	} else if (s[k - 1] == '\n') {
+		if (!(k == 1 && c->prev_cr))
+			c->line++;
+		c->prev_cr = 0;
+	} else {
+		c->prev_cr = 0;
+	}
+}
+
+/* Reads the next chunk; at EOF flushes the last row from libcsv. */
+static void csvin_fill(struct qw_csvin *c)
+{
+	size_t n = fread(c->chunk, 1, QW_CSVIN_CHUNK, c->fp);
+
+	c->pos = 0;
+	c->len = n;
+	if (c->done == 0 && n >= CSVIN_BOM_LEN &&
+	    memcmp(c->chunk, CSVIN_BOM, CSVIN_BOM_LEN) == 0)
+		c->pos = CSVIN_BOM_LEN;
+	c->done += n;
+	if (n > 0)
+		return;
+	if (ferror(c->fp)) {
+		csvin_fatal(c, QW_EIO, "read error: %s", strerror(errno));
+		return;
+	}
+	c->finished = 1;
+	/* Non-strict libcsv would hand over a quoted field still open at the
+	 * end as if it were closed, swallowing the lines after its quote. */
+	if (c->csv.quoted && c->csv.pstate == CSVIN_LIBCSV_FIELD_BEGUN) {
+		csvin_report(c, "unterminated quoted field at the end of the "
+				"file");
+		return;
+	}
+	csv_fini(&c->csv, csvin_on_field, csvin_on_row, c);
+}
+
+/* One unit of work: feed a slice, or read a chunk.  1 once the file is
+ * exhausted, else 0. */
+static int csvin_step(struct qw_csvin *c)
+{
+	if (c->pos < c->len) {
+		csvin_feed(c);
+		return 0;
+	}
+	if (c->finished)
+		return 1;
+	csvin_fill(c);
+	return 0;
+}
+
+/* ---- open and close ------------------------------------------------------ */
+
+static int csvin_begin(struct qw_csvin *c, char *err, size_t errlen)
+{
+	/* libcsv, not strict: a stray quote inside a field is kept as a
+	 * character (a mapped cell then fails as a number, an unmapped one
+	 * does not matter), so one odd cell never stops the file. */
+	if (csv_init(&c->csv, 0) != 0)
+		csvin_fatal(c, QW_ENOMEM, "out of memory");
+	else
+		c->csv_live = 1;
+	while (!c->header_done && c->fatal == 0 && csvin_step(c) == 0)
+		;
+	if (c->fatal == 0 && !c->header_done)
+		csvin_fatal(c, QW_EFORMAT, "empty file: no header row");
+	if (c->fatal != 0 && errlen > 0)
+		snprintf(err, errlen, "%s", c->error);
+	return c->fatal;
+}
+
+int qw_csvin_open_stream(FILE *fp, const char *name, uint64_t size,
+			 qw_csvin_report_fn *report, void *ctx,
+			 struct qw_csvin **out, char *err, size_t errlen)
+{
+	struct qw_csvin *c = calloc(1, sizeof *c);
+	int rc;
+
+	*out = NULL;
+	if (c == NULL)
+		goto nomem;
+	c->fp = fp;
+	c->total = size;
+	c->line = 1;
+	c->label_col = CSVIN_NO_COL;
+	c->row.label = -1;
+	c->report = report;
+	c->ctx = ctx;
+	c->name = strdup(name);
+	c->chunk = malloc(QW_CSVIN_CHUNK);
+	if (c->name == NULL || c->chunk == NULL)
+		goto nomem;
+	rc = csvin_begin(c, err, errlen);
+	if (rc != 0) {
+		qw_csvin_close(c);
+		return rc;
+	}
+	*out = c;
+	return 0;
+nomem:
+	qw_csvin_close(c);
+	if (errlen > 0)
+		snprintf(err, errlen, "%s: out of memory", name);
+	return QW_ERROR(QW_ENOMEM);
+}
+
+int qw_csvin_open(const char *path, qw_csvin_report_fn *report, void *ctx,
+		  struct qw_csvin **out, char *err, size_t errlen)
+{
+	struct stat st;
+	FILE *fp;
+	uint64_t size = 0;
+	int rc, is_stdin = strcmp(path, "-") == 0;
+
+	*out = NULL;
+	fp = is_stdin ? stdin : fopen(path, "rb");
+	if (fp == NULL) {
+		if (errlen > 0)
+			snprintf(err, errlen, "%s: %s", path, strerror(errno));
+		return QW_ERROR(QW_EIO);
+	}
+	if (fstat(fileno(fp), &st) == 0 && S_ISREG(st.st_mode))
+		size = (uint64_t)st.st_size;
+	rc = qw_csvin_open_stream(fp, is_stdin ? "(stdin)" : path, size,
+				  report, ctx, out, err, errlen);
+	if (rc != 0 && !is_stdin)
+		fclose(fp);
+	else if (rc == 0)
+		(*out)->own_fp = !is_stdin;
+	return rc;
+}
+
+void qw_csvin_close(struct qw_csvin *c)
+{
+	size_t j;
+
+	if (c == NULL)
+		return;
+	if (c->own_fp)
+		fclose(c->fp);
+	if (c->csv_live)
+		csv_free(&c->csv);
+	for (j = 0; j < c->ncols; j++)
+		free(c->cols[j]);
+	free(c->cols);
+	free(c->use);
+	free(c->x);
+	free(c->chunk);
+	free(c->name);
+	free(c);
+}
+
+/* ---- columns ------------------------------------------------------------- */
+
+size_t qw_csvin_ncols(const struct qw_csvin *c)
+{
+	return c->ncols;
+}
+
+const char *qw_csvin_column(const struct qw_csvin *c, size_t j)
+{
+	return j < c->ncols ? c->cols[j] : NULL;
+}
+
+/* The one column 1..ncols-1 called name: 0 and *col, or QW_EFORMAT with
+ * the message in err. */
+static int csvin_find(const struct qw_csvin *c, const char *name,
+		      const char *whose, size_t *col, char *err,
+		      size_t errlen)
+{
+	size_t j, found = CSVIN_NO_COL;
+
+	for (j = 1; j < c->ncols; j++) {
+		if (strcmp(c->cols[j], name) != 0)
+			continue;
+		if (found != CSVIN_NO_COL) {
+			if (errlen > 0)
+				snprintf(err, errlen, "%s: column '%s' %s "
+					 "appears twice (columns %zu and "
+					 "%zu)", c->name, name, whose,
+					 found + 1, j + 1);
+			return QW_ERROR(QW_EFORMAT);
+		}
+		found = j;
+	}
+	if (found == CSVIN_NO_COL) {
+		if (errlen > 0)
+			snprintf(err, errlen, "%s: no column '%s' %s", c->name,
+				 name, whose);
+		return QW_ERROR(QW_EFORMAT);
+	}
+	*col = found;
+	return 0;
+}
+
+int qw_csvin_map(struct qw_csvin *c, const char *group,
+		 const char (*names)[QW_CONFIG_NAME_MAX], size_t n,
+		 size_t *idx, char *err, size_t errlen)
+{
+	char whose[QW_CONFIG_NAME_MAX + 16];
+	size_t i;
+	int rc;
+
+	if (c->rows > 0 || c->bad > 0)
+		return QW_ERROR(QW_ESTATE);
+	snprintf(whose, sizeof whose, "for group '%s'", group);
+	for (i = 0; i < n; i++) {
+		rc = csvin_find(c, names[i], whose, &idx[i], err, errlen);
+		if (rc != 0)
+			return rc;
+	}
+	for (i = 0; i < n; i++)
+		c->use[idx[i]] = 1;
+	return 0;
+}
+
+int qw_csvin_label(struct qw_csvin *c, const char *name, char *err,
+		   size_t errlen)
+{
+	if (c->rows > 0 || c->bad > 0)
+		return QW_ERROR(QW_ESTATE);
+	return csvin_find(c, name, "for the labels", &c->label_col, err,
+			  errlen);
+}
+
+/* ---- rows ---------------------------------------------------------------- */
+
+int qw_csvin_next(struct qw_csvin *c, const struct qw_csvin_row **row)
+{
+	c->ready = 0;
+	while (!c->ready && c->fatal == 0 && csvin_step(c) == 0)
+		;
+	if (c->fatal != 0)
+		return c->fatal;
+	if (!c->ready)
+		return 0;
+	c->rows++;
+	*row = &c->row;
+	return 1;
+}
+
+const char *qw_csvin_error(const struct qw_csvin *c)
+{
+	return c->error;
+}
+
+uint64_t qw_csvin_rows(const struct qw_csvin *c)
+{
+	return c->rows;
+}
+
+uint64_t qw_csvin_bad(const struct qw_csvin *c)
+{
+	return c->bad;
+}
+
+void qw_csvin_progress(const struct qw_csvin *c, uint64_t *done,
+		       uint64_t *total)
+{
+	*done = c->done;
+	*total = c->total;
+}

@@ -1,0 +1,68 @@
+"""End-to-end 6: memory stays flat.  10^6 readings (binary batches of 64)
+through the daemon, with status requests and stats messages along the way;
+VmRSS may grow by less than 1 MiB after the warm-up, and every reading
+must arrive (no loss)."""
+import os
+import struct
+import numpy as np
+import qwtest as q
+
+q.need_program()
+BATCH = 64
+CHUNK = 256 * BATCH  # readings sent before waiting for the daemon: keeps
+                     # libzmq's queue (and so the heap) at a bounded backlog
+TOTAL = int(os.environ.get("QW_MEM_BATCHES", "15625")) * BATCH  # 10^6
+WARM = 10 * CHUNK  # 10^6 readings; warm-up ~10%
+GROWTH_MAX = 1024  # KiB: the issue's bound
+P = len(q.SKID)
+
+rec = np.dtype([("t", "<i8"), ("x", "<f8", (P,))])
+POOL = 97  # distinct payloads, cycled (prime: no alignment with batches)
+t, x = q.skid_readings(POOL * BATCH, seed=5772)
+bodies = []
+for k in range(POOL):
+    r = np.empty(BATCH, dtype=rec)
+    r["t"] = (t[k * BATCH:(k + 1) * BATCH] * 1e9).astype(np.int64)
+    r["x"] = x[k * BATCH:(k + 1) * BATCH]
+    bodies.append(r.tobytes())
+
+tmp = q.tmpdir()
+pub = q.Publisher()
+d = q.Daemon(tmp, q.ini(tmp, {"skid": q.skid_group()}, [">" + pub.endpoint],
+                        stats_every="0.05s"))
+pub.wait_sub("skid")
+sub = q.AlertSub(d.alerts)  # a live subscriber: stats are really sent
+sub.ready()
+
+
+def send(first, n):
+    for k in range(first // BATCH, (first + n) // BATCH):
+        hdr = struct.pack("<4sIIIQ", b"QWB1", P, BATCH, 0, k * BATCH)
+        pub.send("skid", hdr + bodies[k % POOL])
+        if k % 500 == 0:
+            sub.pump(0)
+
+
+done, rss0 = 0, None
+while done < TOTAL:
+    if done == WARM:
+        rss0 = d.rss_kib()
+    n = min(CHUNK, TOTAL - done)
+    send(done, n)
+    done += n
+    d.wait_readings("skid", done, timeout=60)
+    sub.pump(0)
+    if os.environ.get("QW_MEM_TRACE"):
+        q.note("%d %d" % (done, d.rss_kib()))
+st = d.status()
+rss1 = d.rss_kib()
+g = st["groups"]["skid"]
+q.note("VmRSS %d KiB after %d readings, %d KiB after %d: growth %d KiB; "
+       "%d stats messages" % (rss0, WARM, rss1, TOTAL, rss1 - rss0, st["stats_sent"]))
+q.check(g["readings"] == TOTAL and g["lost"] == 0 and g["gaps"] == 0,
+        "readings %d lost %d" % (g["readings"], g["lost"]))
+q.check(st["stats_sent"] > 10, "stats not exercised")
+q.check(rss1 - rss0 < GROWTH_MAX, "RSS grew by %d KiB" % (rss1 - rss0))
+rc, secs = d.stop()
+q.check(rc == 0, "exit %d" % rc)
+print("ok")

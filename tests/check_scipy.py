@@ -10,9 +10,10 @@ Reads the output of `quadwatch check` on stdin.  For every group:
   - correct = no: limit_steady equals limit_chisq                (<= 1e-12)
   - correct = yes: limit_steady is above limit_chisq (the finite-sample
     correction only widens the limit).
-nu and scale of the corrected limit are not printed (the detector exposes
-no steady nu/scale), so the F-distribution comparison is skipped; the scale
-implied by nu = (2-lam)/lam is printed as a note.
+  - correct = yes: limit_steady = steady_scale * nu p/(nu-p+1) *
+    scipy.stats.f.isf(alpha, p, nu-p+1), nu = steady_nu, checked through
+    scipy.stats.f.sf at the printed limit (<= 1e-8: the limit is printed to
+    10 digits), and nu = (2-lam)/lam from half_life and rate.
 Prints '#' notes; exits 1 on the first mismatch, 0 when all agree.
 With --tamper, perturbs each limit_chisq by 1e-8 before comparing: the run
 must then fail (proves the comparison can fail).
@@ -96,27 +97,34 @@ def check_group(g, tamper):
         print(f"FAIL {name}: corrected limit {steady!r} not above the "
               f"chi-square limit {plain!r}")
         return False
-    note_scale(g, alpha, p, steady)
+    if g['correct'] != 'no' and not note_scale(g, alpha, p, steady):
+        return False
     print(f"# {name}: p={p} persist {k}/{m} alpha={alpha:.6g} "
           f"limit={plain:.8g} agree with scipy.stats.chi2 and brentq")
     return True
 
 
 def note_scale(g, alpha, p, steady):
-    """The scale the corrected limit implies with nu = (2-lam)/lam."""
-    if g['correct'] == 'no':
-        return
-    h, rate = float(g['half_life']), float(g['rate'])
-    unit = g.get('_half_life_unit', 'readings')
-    steps = h if unit == 'readings' else h * rate
-    lam = -math.expm1(-math.log(2) / steps)
-    nu = (2 - lam) / lam
+    """The corrected limit through scipy's F distribution: its sf at the
+    printed limit is alpha, and nu is (2-lam)/lam."""
+    nu = float(g['steady_nu'])
+    scale = float(g['steady_scale'])
+    h = float(g['half_life'])
+    rate = float(g['rate'])
+    steps = 1.0 / rate if g['_half_life_unit'] == 's' else 1.0
+    lam = -math.expm1(-math.log(2.0) * steps / h)
+    ok = True
+    if rel(nu, (2 - lam) / lam) > 1e-12:
+        print(f"FAIL {g['group']}: steady_nu {nu!r} is not (2-lam)/lam")
+        ok = False
     d2 = nu - p + 1
-    if d2 <= 0:
-        return
-    base = nu * p / d2 * stats.f.isf(alpha, p, d2)
-    print(f"# {g['group']}: nu=(2-lam)/lam={nu:.6g}; implied scale "
-          f"{steady / base:.8g} (not checked: check prints no nu/scale)")
+    sf = stats.f.sf(steady / (scale * nu * p / d2), p, d2)
+    if rel(sf, alpha) > 1e-8:
+        print(f"FAIL {g['group']}: scipy f.sf at limit_steady = {sf!r}, alpha {alpha!r}")
+        ok = False
+    print(f"# {g['group']}: nu {nu:.6g}, scale {scale:.8g}; scipy.stats.f.sf at "
+          f"the steady limit / alpha - 1 = {sf / alpha - 1:.2g}")
+    return ok
 
 
 def main():

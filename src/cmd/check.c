@@ -137,7 +137,7 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 {
 	const struct qw_params *par = &g->params;
 	qw_detector *d = qw_detector_alloc(par);
-	double alpha, plain, steady;
+	double alpha, plain, steady, nu, scale;
 
 	if (d == NULL) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s]: cannot "
@@ -148,6 +148,8 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	alpha = qw_detector_alpha(d);
 	plain = qw_limit_chisq(alpha, (unsigned)g->p);
 	steady = qw_detector_steady_limit(d);
+	nu = qw_detector_steady_nu(d);
+	scale = qw_detector_steady_scale(d);
 	qw_detector_free(d);
 	if (!isfinite(steady)) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s] half_life: "
@@ -166,6 +168,8 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	chk_kv(2, "alpha", "%.10g", alpha);
 	chk_kv(2, "limit_chisq", "%.10g", plain);
 	chk_kv(2, "limit_steady", "%.10g", steady);
+	chk_kv(2, "steady_nu", "%.17g", nu);
+	chk_kv(2, "steady_scale", "%.17g", scale);
 	chk_kv(2, "exceedances_per_day", "%.10g",
 	       alpha * par->rate * QW_SECONDS_PER_DAY);
 	chk_kv(2, "expected_alarms_per_day", "%.10g", par->alarms_per_day);

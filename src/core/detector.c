@@ -415,16 +415,23 @@ double qw_detector_alpha(const qw_detector *d)
 	return d->alpha;
 }
 
+/* Fixed point of ewcov.c's recursions: nu = (2-lam)/lam, scale =
+ * 1/(1-lam), and a model learned wholly under the guard (tshare = 1). */
+double qw_detector_steady_nu(const qw_detector *d)
+{
+	return d->par.correct ? (2.0 - d->lam) / d->lam : INFINITY;
+}
+
+double qw_detector_steady_scale(const qw_detector *d)
+{
+	return d->par.correct ? 1.0 / (d->kappa * (1.0 - d->lam)) : 1.0;
+}
+
 double qw_detector_steady_limit(const qw_detector *d)
 {
-	double lam = d->lam;
-
-	if (!d->par.correct)
-		return qw_limit_chisq(d->alpha, (unsigned)d->par.p);
-	/* Fixed point of ewcov.c's recursions: nu = (2-lam)/lam,
-	 * scale = 1/(1-lam). */
 	return qw_limit_corrected(d->alpha, (unsigned)d->par.p,
-				  (2.0 - lam) / lam, 1.0 / (d->kappa * (1.0 - lam)));
+				  qw_detector_steady_nu(d),
+				  qw_detector_steady_scale(d));
 }
 
 double qw_detector_limit(const qw_detector *d)

@@ -234,6 +234,11 @@ int qw_detector_in_alarm(const qw_detector *d);
  * size (what `check` prints). */
 double qw_detector_alpha(const qw_detector *d);
 double qw_detector_steady_limit(const qw_detector *d);
+/* What that limit is made of: steady limit = scale * nu p/(nu-p+1) *
+ * F^-1(1 - alpha; p, nu-p+1).  nu = (2-lam)/lam, scale = 1/(kappa (1-lam))
+ * (kappa: the guard's bias, detector.c); Inf and 1 when not corrected. */
+double qw_detector_steady_nu(const qw_detector *d);
+double qw_detector_steady_scale(const qw_detector *d);
 /* The limit in force for the next full reading. */
 double qw_detector_limit(const qw_detector *d);
 

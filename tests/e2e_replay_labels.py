@@ -85,3 +85,22 @@ for key, v in want.items():
     q.check(abs(out["groups"]["skid"][key] - v) <= 1e-12 * max(1.0, abs(v)),
             "group %s" % key)
 print("ok")
+
+# A per-group truth column, label_<group>, takes precedence over the shared
+# one: here label_skid marks no fault at all, so the same alarms are now all
+# false alarms and no event exists to detect.
+data2 = os.path.join(tmp, "l2.csv")
+with open(data) as f, open(data2, "w") as g:
+    for n, line in enumerate(f):
+        g.write(line.rstrip("\n") + (",label_skid\n" if n == 0 else ",0\n"))
+r = subprocess.run([q.QW, "replay", "-c", ini, "--json", "--labels", "label",
+                    data2], capture_output=True, text=True)
+q.check(r.returncode == 0, "exit %d %s" % (r.returncode, r.stderr))
+own = json.loads(r.stdout)
+q.check(own["alarms"] == out["alarms"], "same alarms with the own column")
+q.check(own["precision"] == 0.0, "precision with label_skid all 0: %r"
+        % own["precision"])
+q.check(own["detection_rate"] in (None, 0.0),
+        "no event to detect: %r" % own["detection_rate"])
+q.note("label_skid preferred over label: precision %r, detection %r"
+       % (own["precision"], own["detection_rate"]))

@@ -81,6 +81,8 @@ struct replay_group {
 	int played;            /* some input fed it */
 	int mapped;            /* the current CSV feeds it */
 	size_t *idx;           /* p CSV column indices (current file) */
+	int own_label;         /* the current CSV has COLUMN_<group> */
+	size_t label_idx;      /* its index, when own_label */
 	double *x;             /* p values of the reading being played */
 	uint64_t rejected[RP_NCAUSES]; /* before the core */
 	uint64_t *top_count;   /* p: alarms where the channel ranked first */

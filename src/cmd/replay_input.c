@@ -9,6 +9,7 @@
  *
  * Workload: one pass per file; the only buffers are the group's x[p] and
  * the decode batch sized from max_frame, both allocated at setup. */
+#include <math.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -32,6 +33,52 @@ const char *const qw_replay_cause_names[RP_NCAUSES] = {
 	[RP_OVERFLOW] = "overflow",
 	[RP_EMPTY] = "empty",
 };
+
+/* 1 when the CSV has a column called name. */
+static int rp_has_column(const struct qw_csvin *c, const char *name)
+{
+	size_t j;
+
+	for (j = 1; j < qw_csvin_ncols(c); j++)
+		if (strcmp(qw_csvin_column(c, j), name) == 0)
+			return 1;
+	return 0;
+}
+
+/* --labels COLUMN: a group whose own column COLUMN_<group> is in the file
+ * takes its truth from it (a file that records several groups can say
+ * which group each fault belongs to); the others take COLUMN, which must
+ * then exist.  0 or QW_EXIT_USAGE (message printed). */
+static int rp_csv_labels(struct replay *rp, struct qw_csvin *c)
+{
+	char err[QW_CSVIN_ERR_MAX], own[1][QW_CONFIG_NAME_MAX];
+	size_t i;
+	int shared = 0;
+
+	if (rp->o.labels == NULL)
+		return 0;
+	for (i = 0; i < rp->cfg.ngroups; i++) {
+		struct replay_group *g = &rp->groups[i];
+		int n = snprintf(own[0], sizeof own[0], "%s_%s", rp->o.labels,
+				 g->conf->name);
+
+		g->own_label = 0;
+		if (!g->mapped)
+			continue;
+		if (n > 0 && (size_t)n < sizeof own[0] &&
+		    rp_has_column(c, own[0]) &&
+		    qw_csvin_map(c, g->conf->name, own, 1, &g->label_idx, err,
+				 sizeof err) == 0)
+			g->own_label = 1;
+		else
+			shared = 1;
+	}
+	if (shared && qw_csvin_label(c, rp->o.labels, err, sizeof err) != 0) {
+		fprintf(stderr, "quadwatch replay: %s\n", err);
+		return QW_EXIT_USAGE;
+	}
+	return 0;
+}
 
 /* Maps each wanted group onto the CSV's columns.  A group that lacks a
  * column is an error when it was asked for by --group, or when no group
@@ -75,12 +122,7 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 			"channels in this file:%s\n", path, why);
 		return QW_EXIT_USAGE;
 	}
-	if (rp->o.labels != NULL &&
-	    qw_csvin_label(c, rp->o.labels, err, sizeof err) != 0) {
-		fprintf(stderr, "quadwatch replay: %s\n", err);
-		return QW_EXIT_USAGE;
-	}
-	return 0;
+	return rp_csv_labels(rp, c);
 }
 
 /* Every row to every mapped group.  0 or QW_EXIT_FAIL. */
@@ -89,7 +131,7 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	const struct qw_csvin_row *row;
 	uint64_t n = 0;
 	size_t i, k;
-	int rc;
+	int rc, label;
 
 	while ((rc = qw_csvin_next(c, &row)) == 1) {
 		for (i = 0; i < rp->cfg.ngroups; i++) {
@@ -99,7 +141,13 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 				continue;
 			for (k = 0; k < g->conf->p; k++)
 				g->x[k] = row->x[g->idx[k]];
-			qw_replay_reading(rp, g, row->time, g->x, row->label);
+			label = row->label;
+			if (g->own_label) {
+				double v = row->x[g->label_idx];
+
+				label = isnan(v) ? -1 : v != 0.0;
+			}
+			qw_replay_reading(rp, g, row->time, g->x, label);
 		}
 		if (++n % RP_PROGRESS_CHECK == 0) {
 			qw_csvin_progress(c, &rp->cur_done, &rp->cur_total);

@@ -21,6 +21,7 @@
 
 #include "capture.h"
 #include "quadwatch.h"
+#include "qwalloc.h"
 
 #define T_RECS 9       /* records in the round-trip file */
 #define T_PAYLOAD 2000 /* bytes: the reader's bound in these tests */
@@ -343,6 +344,65 @@ static void test_writer_refuses(void **state)
 	qw_capture_reader_close(NULL);
 }
 
+/* Writes 3 records over 2 parts, then reads part 0; 0 or the first
+ * error. */
+static int t_alloc_run(const char *out, unsigned *got)
+{
+	struct qw_capture_writer *w;
+	struct qw_capture_reader *r;
+	const struct qw_capture_rec *rec;
+	int rc, rc2;
+
+	*got = 0;
+	rc = qw_capture_writer_open(out, 60, 0, &w);
+	if (rc != 0)
+		return rc;
+	rc = qw_capture_writer_put(w, 1.5, "rig", 3, "1,2,3,4", 7);
+	if (rc == 0)
+		rc = qw_capture_writer_put(w, 2.5, "rig", 3, "1,2,3,4", 7);
+	if (rc == 0)
+		rc = qw_capture_writer_put(w, 3.5, "rig", 3, "1,2,3,4", 7);
+	rc2 = qw_capture_writer_close(w);
+	if (rc != 0 || rc2 != 0)
+		return rc != 0 ? rc : rc2;
+	rc = qw_capture_reader_open(out, 64, &r);
+	if (rc != 0)
+		return rc;
+	while ((rc = qw_capture_reader_next(r, &rec)) == 1)
+		(*got)++;
+	qw_capture_reader_close(r);
+	return rc;
+}
+
+/* Each allocation of writer and reader fails in turn: a clean error
+ * (ENOMEM, or EIO where stdio is refused) or the right result, and
+ * nothing leaks. */
+static void test_allocation_failures(void **state)
+{
+	struct t_dir *d = *state;
+	unsigned got;
+	long k;
+	int rc;
+
+	if (!QWA_ACTIVE)
+		skip();
+	for (k = 0;; k++) {
+		qwa_start(k);
+		rc = t_alloc_run(d->out, &got);
+		qwa_stop();
+		assert_int_equal(qwa.live, 0);
+		if (!qwa_injected() || rc == 0) {
+			assert_int_equal(rc, 0);
+			assert_int_equal(got, 1); /* 2 and 3 went to part 1 */
+			if (!qwa_injected())
+				break;
+			continue;
+		}
+		assert_true(rc == QW_ENOMEM || rc == QW_EIO);
+	}
+	printf("# capture: %ld allocations, each failed in turn\n", k);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -358,6 +418,8 @@ int main(void)
 						t_teardown),
 		cmocka_unit_test_setup_teardown(test_writer_refuses, t_setup,
 						t_teardown),
+		cmocka_unit_test_setup_teardown(test_allocation_failures,
+						t_setup, t_teardown),
 	};
 
 	return cmocka_run_group_tests(tests, NULL, NULL);

@@ -46,8 +46,11 @@ static int run_signals(void)
 	sa.sa_handler = run_on_hup;
 	if (sigaction(SIGHUP, &sa, NULL))
 		return QW_ERROR(QW_EIO);
+	/* SIGXFSZ: a file-size limit (LimitFSIZE=) must fail the checkpoint
+	 * write with EFBIG, not kill the daemon. */
 	sa.sa_handler = SIG_IGN;
-	return sigaction(SIGPIPE, &sa, NULL) ? QW_ERROR(QW_EIO) : 0;
+	return sigaction(SIGPIPE, &sa, NULL) || sigaction(SIGXFSZ, &sa, NULL)
+	       ? QW_ERROR(QW_EIO) : 0;
 }
 
 static int run_usage(void)

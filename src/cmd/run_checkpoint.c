@@ -35,7 +35,7 @@ int qw_run_save(struct run_daemon *dm, char *err, size_t errlen)
 		dm->ckpt_log.last = -1;
 	}
 	if (dm->cfg.state_dir[0] == '\0') {
-		snprintf(err, errlen, "no [state] dir configured");
+		snprintf(err, errlen, "no state dir"); /* as documented */
 		return QW_ERROR(QW_ESTATE);
 	}
 	for (i = 0; i < dm->cfg.ngroups; i++) {

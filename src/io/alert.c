@@ -8,7 +8,9 @@
  * score, limit, pvalue, dof, channels.
  *
  * Workload: one object per raised or cleared alarm, which is rare by
- * design (the configured alarms per day); allocation here is harmless. */
+ * design (the configured alarms per day); allocation here is harmless.
+ * (jansson 2.14 can misread a number when it runs out of memory mid-parse;
+ * see wire.c.) */
 #include "alert.h"
 
 #include <jansson.h>

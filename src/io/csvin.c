@@ -32,8 +32,9 @@
 #define CSVIN_BOM_LEN 3u
 #define CSVIN_SHOW_MAX 40  /* bytes of a bad field quoted in a message */
 #define CSVIN_NO_COL SIZE_MAX
-#define CSVIN_LIBCSV_FIELD_BEGUN 2 /* libcsv.c's pstate inside a field
-				      (stable since libcsv 3.0) */
+/* libcsv.c's parser states (struct csv_parser.pstate, stable since 3.0) */
+#define CSVIN_LIBCSV_ROW_NOT_BEGUN 0 /* between rows */
+#define CSVIN_LIBCSV_FIELD_BEGUN 2   /* inside a field */
 
 struct qw_csvin {
 	FILE *fp;
@@ -47,6 +48,7 @@ struct qw_csvin {
 	uint64_t done, total;    /* bytes read, file size (0 unknown) */
 	uint64_t line;           /* line of the bytes being fed, 1-based */
 	int prev_cr;             /* last slice ended with CR */
+	uint64_t row_start;      /* line where the row being read began */
 
 	char **cols;             /* ncols header names */
 	size_t ncols, cols_cap;
@@ -88,13 +90,14 @@ static int csvin_digits(const char *s, size_t n, int *out)
 
 /* Days from 1970-01-01 to y-m-d in the proleptic Gregorian calendar
  * (H. Hinnant, "chrono-compatible low-level date algorithms",
- * days_from_civil); y >= 0. */
+ * days_from_civil).  Years start in March, so January and February of
+ * year 0 belong to year -1: the era division must floor. */
 static int64_t csvin_days(int y, int m, int d)
 {
 	int era, yoe, doy, doe;
 
 	y -= m <= 2;
-	era = y / 400;
+	era = (y >= 0 ? y : y - 399) / 400;
 	yoe = y - era * 400;
 	doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
 	doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
@@ -219,13 +222,14 @@ static void csvin_bad_field(struct qw_csvin *c, const char *what,
 		 len > n ? "..." : "");
 }
 
-static void csvin_report(struct qw_csvin *c, const char *why)
+/* Counts and reports a malformed row at line. */
+static void csvin_report(struct qw_csvin *c, uint64_t line, const char *why)
 {
 	char msg[QW_CSVIN_ERR_MAX + 64];
 
 	c->bad++;
 	snprintf(msg, sizeof msg, "%s:%llu: %s", c->name,
-		 (unsigned long long)c->line, why);
+		 (unsigned long long)line, why);
 	if (c->report != NULL)
 		c->report(c->ctx, msg);
 	else if (c->bad <= QW_CSVIN_REPORT_MAX)
@@ -350,9 +354,9 @@ static void csvin_on_row(int term, void *data)
 	} else if (c->field != c->ncols) {
 		snprintf(why, sizeof why, "%zu fields, the header has %zu",
 			 c->field, c->ncols);
-		csvin_report(c, why);
+		csvin_report(c, c->line, why);
 	} else if (c->row_bad) {
-		csvin_report(c, c->why);
+		csvin_report(c, c->line, c->why);
 	} else {
 		c->x[0] = c->row.time;
 		c->row.line = c->line;
@@ -375,6 +379,8 @@ static void csvin_feed(struct qw_csvin *c)
 		;
 	if (k < n)
 		k++; /* the terminator ends this slice */
+	if (c->csv.pstate == CSVIN_LIBCSV_ROW_NOT_BEGUN)
+		c->row_start = c->line; /* a row may begin in this slice */
 	if (csv_parse(&c->csv, s, k, csvin_on_field, csvin_on_row, c) != k) {
 		csvin_fatal(c, QW_ENOMEM, "%s", csv_strerror(csv_error(&c->csv)));
 		return;
@@ -418,8 +424,8 @@ static void csvin_fill(struct qw_csvin *c)
 	/* Non-strict libcsv would hand over a quoted field still open at the
 	 * end as if it were closed, swallowing the lines after its quote. */
 	if (c->csv.quoted && c->csv.pstate == CSVIN_LIBCSV_FIELD_BEGUN) {
-		csvin_report(c, "unterminated quoted field at the end of the "
-				"file");
+		csvin_report(c, c->row_start, "unterminated quoted field: "
+			     "its quote runs to the end of the file");
 		return;
 	}
 	csv_fini(&c->csv, csvin_on_field, csvin_on_row, c);

@@ -13,6 +13,10 @@
  * that copies each value and ORs together an "is infinite" test.  Text and
  * JSON carry one reading per frame and are for low-rate publishers and
  * hand-made test traffic; JSON goes through jansson, which allocates.
+ * Known jansson limitation (2.14): when growing its token buffer fails, its
+ * lexer drops characters of the number being read instead of failing, so
+ * under memory exhaustion a JSON value can be misread (test_wire counts
+ * this); the binary and text paths do not allocate and cannot.
  *
  * Byte order is converted only here, with le32toh/le64toh (no-ops on little
  * endian hosts, byte swaps elsewhere).  Times travel as int64 nanoseconds on
@@ -79,9 +83,9 @@ static void wire_wr64(unsigned char *d, uint64_t v)
 
 /* ---- time ---------------------------------------------------------------- */
 
-/* int64 ns -> seconds.  Whole seconds and the remainder are converted
- * separately so the remainder's division rounds once: the result is within
- * half an ulp of ns/1e9 for every time of the epoch range. */
+/* int64 ns -> seconds.  Whole seconds are exact and the remainder is one
+ * correctly rounded division, so the sum is within an ulp of ns/1e9 (a
+ * single (double)ns / 1e9 would first round ns itself, by up to 1 us). */
 static double wire_ns_to_s(int64_t ns)
 {
 	int64_t sec = ns / WIRE_NS_PER_S, rem = ns % WIRE_NS_PER_S;
@@ -125,7 +129,8 @@ size_t qw_wire_binary_len(size_t p, size_t n)
 
 /* The record loop: n records of p channels from s into b.  Values are
  * copied bit for bit (any NaN is "missing"); a single +-Inf, or a time
- * beyond QW_WIRE_TIME_MAX, refuses the frame.  The Inf test is accumulated without a branch per value. */
+ * beyond QW_WIRE_TIME_MAX, refuses the frame.  The Inf test is accumulated
+ * without a branch per value. */
 static int wire_binary_records(const unsigned char *s, size_t n,
 			       struct qw_wire_batch *b)
 {
@@ -228,7 +233,8 @@ static int wire_blank(char c)
 }
 
 /* The reading's time from text: a number of seconds within
- * +-QW_WIRE_TIME_MAX.  QW_ENUMBER for junk or nan, QW_ERANGE for inf or out of range. */
+ * +-QW_WIRE_TIME_MAX.  QW_ENUMBER for junk or nan, QW_ERANGE for inf or
+ * out of range. */
 static int wire_time_text(const char *s, size_t len, double *t)
 {
 	int64_t ns;
@@ -393,6 +399,8 @@ static int wire_decode_json(const char *s, size_t len,
 	 * only a value beyond double's range is a numeric overflow. */
 	root = json_loadb(s, len, JSON_REJECT_DUPLICATES |
 			  JSON_DECODE_INT_AS_REAL, &err);
+	/* jansson does not tell running out of memory apart from bad syntax
+	 * (both come back as parse errors): either way, QW_EFORMAT. */
 	if (root == NULL)
 		return json_error_code(&err) == json_error_numeric_overflow
 			       ? QW_ERROR(QW_ERANGE)

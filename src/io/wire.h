@@ -4,8 +4,12 @@
  *  binary  "QWB1", uint32 p, uint32 n, uint32 flags (0), uint64 seq of the
  *          first reading, then n records {int64 time ns, float64 x[p]};
  *          little endian; 24-byte header.
- *  text    "time,v1,...,vp" (one reading, ASCII; empty or nan = missing)
- *  JSON    {"t": seconds, "v": [v1, ..., vp]} (null = missing)
+ *  text    "time,v1,...,vp" (one reading, ASCII; empty or nan = missing;
+ *          one optional trailing \n or \r\n, no other line break)
+ *  JSON    {"t": seconds, "v": [v1, ..., vp]} (null = missing; exactly
+ *          these two keys, duplicates refused)
+ * Told apart by the first bytes: "QWB1" (or a prefix of it, a cut frame)
+ * binary, a first non-blank '{' JSON, anything else text.
  * Byte order is converted only here.  Lengths are checked against the
  * header before any copy. */
 #ifndef QW_WIRE_H
@@ -42,13 +46,14 @@ struct qw_wire_batch {
  * QW_ETRUNC (shorter than the header says), QW_EOVERSIZE (n > cap),
  * QW_ECOUNT (p differs from b->p), QW_ENUMBER (a bad number),
  * QW_ERANGE (+-Inf, or |time| > QW_WIRE_TIME_MAX), QW_EFORMAT (anything
- * else malformed, including an empty frame).  On error b->n = 0. */
+ * else malformed, including an empty frame, and a JSON frame the parser
+ * had no memory for; binary and text never allocate).  On error b->n = 0. */
 int qw_wire_decode(const void *buf, size_t len, struct qw_wire_batch *b);
 
 /* Encoders, for the simulator, record tests and benchmarks.  Each writes at
  * most cap bytes and returns the length, or 0 if cap is too small, a time
- * is not finite or beyond QW_WIRE_TIME_MAX, or a value is +-Inf (which the decoder
- * refuses).  NaN is written as missing (binary: as is; text: an empty
+ * is not finite or beyond QW_WIRE_TIME_MAX, or a value is +-Inf (which the
+ * decoder refuses).  NaN is written as missing (binary: as is; text: an empty
  * field; JSON: null).  Text and JSON use %.17g (exact round trip), carry no
  * newline and are NUL-terminated (so they need cap > length). */
 size_t qw_wire_encode_binary(void *buf, size_t cap, size_t p, size_t n,

@@ -20,20 +20,23 @@ int qw_alarm_init(struct qw_alarm *a, unsigned k, unsigned m,
 void qw_alarm_reset(struct qw_alarm *a)
 {
 	a->window = 0;
+	a->count = 0;
 	a->under = 0;
 	a->in_alarm = 0;
 }
 
 int qw_alarm_add(struct qw_alarm *a, int over)
 {
+	/* The bit leaving the window is bit m-1; the count follows it (no
+	 * popcount: portable builds have no instruction for it). */
+	unsigned leaving = (unsigned)(a->window >> (a->m - 1)) & 1u;
 	uint64_t mask = a->m == 64 ? ~(uint64_t)0
 				   : (((uint64_t)1 << a->m) - 1);
-	unsigned count;
 
 	a->window = ((a->window << 1) | (over ? 1u : 0u)) & mask;
-	count = (unsigned)__builtin_popcountll(a->window);
+	a->count = a->count - leaving + (over ? 1u : 0u);
 	if (!a->in_alarm) {
-		if (count < a->k)
+		if (a->count < a->k)
 			return QW_EVENT_NONE;
 		a->in_alarm = 1;
 		a->under = 0;

@@ -43,6 +43,8 @@
  * the model (identical after a restore) and recomputed ~ln(nu)/step times
  * in a model's life; the rounding moves the limit by well under 1e-4. */
 #define QW_DET_NU_RTOL 1e-3
+/* Readings learned between full self-checks of the factor. */
+#define QW_DET_VERIFY_EVERY 1024
 /* Defaults (our choices, documented in quadwatch.ini(5)). */
 #define QW_DEF_HALF_LIFE 2000.0 /* readings: ~ 3.3 min at 10 Hz */
 #define QW_DEF_RATE 1.0         /* readings per second */
@@ -320,8 +322,12 @@ static int det_learn(qw_detector *d, int complete, int warm, double w,
 		return 0;
 	d->tshare = (1.0 - w) * d->tshare + (warm ? w : 0.0);
 	d->cnt.learned++;
-	/* Self-check of the factor every p readings: O(p) amortised. */
-	if (d->cnt.learned % d->par.p == 0 && qw_ewcov_verify(d->ew) != 0)
+	/* Self-check of the whole factor now and then: every installed
+	 * factor is finite by construction (the double buffer), so this
+	 * guards against corruption from outside, at O(p^2) per
+	 * QW_DET_VERIFY_EVERY readings. */
+	if (d->cnt.learned % QW_DET_VERIFY_EVERY == 0 &&
+	    qw_ewcov_verify(d->ew) != 0)
 		d->cnt.numeric++;
 	return 1;
 }
@@ -498,6 +504,7 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 		return rc;
 	d->cnt = h.cnt;
 	d->alarm.window = h.window;
+	d->alarm.count = (unsigned)__builtin_popcountll(h.window);
 	d->alarm.under = h.under;
 	d->alarm.in_alarm = (int)h.in_alarm;
 	d->alarm_run = h.alarm_run;

@@ -131,6 +131,7 @@ enum qw_event {
 
 struct qw_alarm {
 	uint64_t window;   /* bit i: reading i back was over the limit */
+	unsigned count;    /* bits set in window */
 	unsigned k, m;     /* raise when >= k of the last m are over */
 	unsigned clear_n;  /* clear after clear_n consecutive readings under */
 	unsigned under;    /* consecutive readings under, while in alarm */

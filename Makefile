@@ -92,9 +92,11 @@ check-asan: deps
 	@BUILD=build-asan QW_SANITIZED=1 ASAN_OPTIONS=detect_leaks=1 \
 		UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 tests/run
 
+# The end-to-end tests whose daemons run under valgrind (memcheck, leaks).
+VALGRIND_TESTS ?= t_run_alert t_run_badinput t_run_control t_run_reload
 check-valgrind: deps
 	@$(MAKE) --no-print-directory tests
-	@BUILD=$(BUILD) QW_VALGRIND=1 tests/run
+	@BUILD=$(BUILD) QW_VALGRIND=1 QW_VALGRIND_TESTS="$(VALGRIND_TESTS)" tests/run
 
 bench: deps
 	@$(MAKE) --no-print-directory $(PROG) $(BENCH_BIN)

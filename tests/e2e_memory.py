@@ -68,7 +68,12 @@ q.note("VmRSS %d KiB after %d readings, %d KiB after %d: growth %d KiB; "
 q.check(g["readings"] == TOTAL and g["lost"] == 0 and g["gaps"] == 0,
         "readings %d lost %d" % (g["readings"], g["lost"]))
 q.check(st["stats_sent"] > 10, "stats not exercised")
-q.check(rss1 - rss0 < GROWTH_MAX, "RSS grew by %d KiB" % (rss1 - rss0))
+if os.environ.get("QW_SANITIZED"):
+    # AddressSanitizer's quarantine holds freed memory back on purpose, so
+    # RSS says nothing about leaks there (LeakSanitizer checks at exit).
+    q.note("sanitized build: RSS growth reported, not bounded")
+else:
+    q.check(rss1 - rss0 < GROWTH_MAX, "RSS grew by %d KiB" % (rss1 - rss0))
 rc, secs = d.stop()
 q.check(rc == 0, "exit %d" % rc)
 print("ok")

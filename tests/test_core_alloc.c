@@ -100,8 +100,8 @@ static qw_detector *make(size_t p)
 static void no_allocation_per_reading(void **st)
 {
 	const size_t p = 8;
-	qw_detector *d = make(p);
-	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	qw_detector *d;
+	gsl_rng *rng;
 	double A[64], z[8], x[8];
 	struct qw_result res;
 	long explained = 0;
@@ -109,6 +109,8 @@ static void no_allocation_per_reading(void **st)
 	(void)st;
 	if (!COUNTING)
 		skip();
+	d = make(p);
+	rng = gsl_rng_alloc(gsl_rng_mt19937);
 	gsl_rng_set(rng, 5);
 	qwt_mixing(rng, p, A);
 	for (int k = 0; k < 2000; k++) { /* warm-up, outside the count */

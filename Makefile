@@ -10,7 +10,7 @@ BUILD    ?= build
 CC       ?= cc
 PKGS     := libzmq gsl inih jansson
 WARN     := -Wall -Wextra -Wshadow -Wconversion -Wstrict-prototypes \
-            -Wmissing-prototypes -Wformat=2 -Wno-sign-conversion
+            -Wmissing-prototypes -Wformat=2
 # CI builds with warnings as errors; WERROR=0 to relax locally.
 WERROR   ?= $(if $(CI),1,0)
 ifeq ($(WERROR),1)

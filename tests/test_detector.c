@@ -156,7 +156,7 @@ static void run_persistence(unsigned k, unsigned m, double target)
 		if (i >= par.warmup) {
 			after++;
 			raised += res.event == QW_EVENT_RAISE;
-			overs += res.over;
+			overs += (uint64_t)(res.over != 0);
 			pairs += res.over && prev;
 			prev = res.over;
 		}
@@ -370,7 +370,7 @@ static int run_contamination(enum qw_learn learn, int *still)
 		x[0] += 5 * sd0;
 		qw_detector_add(d, 400 + (double)i / RATE_HZ, x, &res);
 		if (i >= n - 100)
-			overs += res.over;
+			overs += (size_t)(res.over != 0);
 	}
 	*still = res.in_alarm;
 	if (learn == QW_LEARN_SKIP) {

@@ -33,7 +33,7 @@ static const struct {
 	{"ctl", qw_cmd_ctl,
 	 "ctl ENDPOINT CMD            status | rebaseline GROUP | save | reload"},
 	{"relay", qw_cmd_relay, "relay FRONTEND BACKEND      fan-in of alerts"},
-	{"keygen", qw_cmd_keygen, "keygen NAME                 CURVE key pair"},
+	{"keygen", qw_cmd_keygen, "keygen [--force] NAME       CURVE key pair"},
 };
 
 static void usage(FILE *f)

@@ -18,6 +18,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "auth.h"
 #include "bus.h"
 #include "capture.h"
 #include "cmd.h"
@@ -40,6 +41,7 @@ static void rc_on_stop(int sig)
 
 struct rc_opts {
 	const char *config, *out;
+	const char *key, *server_key; /* CURVE: --key, --server-key files */
 	uint64_t rotate, count;
 	double seconds;     /* 0 = no limit */
 };
@@ -57,7 +59,8 @@ struct rc_ctx {
 static int rc_usage(void)
 {
 	fprintf(stderr, "usage: quadwatch record -c FILE -o OUT [--rotate "
-		"BYTES] [--count N] [--seconds S] [-q]\n");
+		"BYTES] [--count N] [--seconds S] [-q]\n"
+		"         [--key FILE] [--server-key FILE]\n");
 	return QW_EXIT_USAGE;
 }
 
@@ -80,6 +83,10 @@ static int rc_args(int argc, char **argv, struct rc_opts *o)
 			o->config = v;
 		else if (strcmp(a, "-o") == 0)
 			o->out = v;
+		else if (strcmp(a, "--key") == 0)
+			o->key = v;
+		else if (strcmp(a, "--server-key") == 0)
+			o->server_key = v;
 		else if (strcmp(a, "--rotate") == 0 ?
 			 qw_num_u64(v, (size_t)-1, QW_CAPTURE_HEADER,
 				    UINT64_MAX, &o->rotate) != 0 :
@@ -97,11 +104,47 @@ static int rc_args(int argc, char **argv, struct rc_opts *o)
 	return o->config == NULL || o->out == NULL ? rc_usage() : 0;
 }
 
-/* Sockets as the daemon's inputs.  0 or QW_EXIT_FAIL (logged). */
-static int rc_open(struct rc_ctx *c)
+/* One input socket; with --key or --server-key a CURVE server (bound) or
+ * client (connecting).  0, QW_EXIT_USAGE (bad keys) or QW_EXIT_FAIL. */
+static int rc_open_input(struct rc_ctx *c, const struct rc_opts *ro,
+			 struct qw_bus_opts *o, size_t i)
+{
+	const struct qw_endpoint *ep = &c->cfg.inputs[i];
+	struct qw_bus_curve curve;
+	char err[QW_AUTH_ERR_MAX];
+	size_t j;
+	int rc;
+
+	o->security = NULL;
+	if (ro->key != NULL || ro->server_key != NULL) {
+		if (qw_auth_endpoint(ro->key, ro->server_key, ep->bind, &curve,
+				     err, sizeof err) != 0) {
+			qw_log(QW_LOG_ERROR, "input %s: %s", ep->addr, err);
+			return QW_EXIT_USAGE;
+		}
+		o->security = &curve;
+	}
+	rc = qw_bus_open(c->bus, QW_BUS_SUB, ep, o, &c->in[i]);
+	if (o->security != NULL)
+		explicit_bzero(&curve, sizeof curve);
+	for (j = 0; rc == 0 && j < c->cfg.ngroups; j++)
+		rc = qw_bus_subscribe(c->in[i], c->cfg.groups[j].name, 1);
+	if (rc == 0)
+		rc = qw_bus_poller_add(c->poller, c->in[i]);
+	if (rc != 0) {
+		qw_log(QW_LOG_ERROR, "input %s%s: %s", ep->bind ? "@" : ">",
+		       ep->addr, qw_bus_strerror());
+		return QW_EXIT_FAIL;
+	}
+	return 0;
+}
+
+/* Sockets as the daemon's inputs.  0 or an exit code (logged). */
+static int rc_open(struct rc_ctx *c, const struct rc_opts *ro)
 {
 	struct qw_bus_opts o;
-	size_t i, j;
+	size_t i;
+	int rc;
 
 	c->bus = qw_bus_alloc();
 	c->poller = qw_bus_poller_alloc(c->cfg.ninputs);
@@ -114,21 +157,9 @@ static int rc_open(struct rc_ctx *c)
 	qw_bus_opts_default(&o);
 	o.max_msg = (int64_t)(c->cfg.max_frame * RC_MAXMSG_FACTOR);
 	o.rcvhwm = RC_INPUT_HWM;
-	for (i = 0; i < c->cfg.ninputs; i++) {
-		const struct qw_endpoint *ep = &c->cfg.inputs[i];
-		int rc = qw_bus_open(c->bus, QW_BUS_SUB, ep, &o, &c->in[i]);
-
-		for (j = 0; rc == 0 && j < c->cfg.ngroups; j++)
-			rc = qw_bus_subscribe(c->in[i], c->cfg.groups[j].name,
-					      1);
-		if (rc == 0)
-			rc = qw_bus_poller_add(c->poller, c->in[i]);
-		if (rc != 0) {
-			qw_log(QW_LOG_ERROR, "input %s%s: %s", ep->bind ? "@"
-			       : ">", ep->addr, qw_bus_strerror());
-			return QW_EXIT_FAIL;
-		}
-	}
+	for (i = 0; i < c->cfg.ninputs; i++)
+		if ((rc = rc_open_input(c, ro, &o, i)) != 0)
+			return rc;
 	return 0;
 }
 
@@ -227,7 +258,7 @@ int qw_cmd_record(int argc, char **argv)
 	sa.sa_handler = rc_on_stop;
 	sigaction(SIGTERM, &sa, NULL);
 	sigaction(SIGINT, &sa, NULL);
-	rc = rc_open(&c);
+	rc = rc_open(&c, &o);
 	if (rc == 0 && qw_capture_writer_open(o.out, o.rotate, 1, &c.w) != 0) {
 		qw_log_errno(QW_LOG_ERROR, "%s (it must not exist)", o.out);
 		rc = QW_EXIT_FAIL;

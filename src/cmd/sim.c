@@ -58,7 +58,8 @@ static int sim_usage(void)
 		"         [--seed S] [--format binary|text|json] [--batch N] "
 		"[--start TIME]\n"
 		"         [--scenario demo|none] [--faults FILE] "
-		"[--wait SECONDS] [-q]\n");
+		"[--wait SECONDS] [-q]\n"
+		"         [--key FILE] [--server-key FILE]\n");
 	return QW_EXIT_USAGE;
 }
 
@@ -117,6 +118,10 @@ static int sim_opt(struct sim_opts *o, const char *k, const char *v)
 		o->out = v;
 	else if (strcmp(k, "--faults") == 0)
 		o->faults = v;
+	else if (strcmp(k, "--key") == 0)
+		o->key = v;
+	else if (strcmp(k, "--server-key") == 0)
+		o->server_key = v;
 	else if (strcmp(k, "--scenario") == 0)
 		o->scenario = v;
 	else if (strcmp(k, "--rate") == 0)

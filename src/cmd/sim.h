@@ -14,6 +14,7 @@
 
 struct sim_opts {
 	const char *conf, *to, *out, *faults, *scenario;
+	const char *key, *server_key; /* CURVE: --key, --server-key files */
 	double rate, start, wait;
 	uint64_t count, seed, batch;
 	int format, quiet;

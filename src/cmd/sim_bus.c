@@ -18,6 +18,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "auth.h"
 #include "bus.h"
 #include "cmd.h"
 #include "log.h"
@@ -36,6 +37,9 @@ static int sim_open(struct sim *sm, qw_bus *bus, qw_bus_sock **s)
 {
 	struct qw_endpoint ep;
 	struct qw_bus_opts o;
+	struct qw_bus_curve curve;
+	char err[QW_AUTH_ERR_MAX];
+	int rc;
 
 	if (sm->o.to != NULL) {
 		if (qw_bus_endpoint_parse(sm->o.to, 0, &ep) != 0) {
@@ -52,7 +56,19 @@ static int sim_open(struct sim *sm, qw_bus *bus, qw_bus_sock **s)
 	o.sndtimeo_ms = SIM_SEND_TIMEOUT_MS;
 	o.rcvtimeo_ms = SIM_TICK_MS;
 	o.linger_ms = SIM_LINGER_MS;
-	if (qw_bus_open(bus, QW_BUS_XPUB, &ep, &o, s) != 0) {
+	if (sm->o.key != NULL || sm->o.server_key != NULL) {
+		/* Bound: a CURVE server (the daemon's publisher_key is our
+		 * .pub); connecting: a client of the daemon's input. */
+		if (qw_auth_endpoint(sm->o.key, sm->o.server_key, ep.bind,
+				     &curve, err, sizeof err) != 0) {
+			fprintf(stderr, "quadwatch sim: %s\n", err);
+			return QW_EXIT_USAGE;
+		}
+		o.security = &curve;
+	}
+	rc = qw_bus_open(bus, QW_BUS_XPUB, &ep, &o, s);
+	explicit_bzero(&curve, sizeof curve);
+	if (rc != 0) {
 		fprintf(stderr, "quadwatch sim: %s%s: %s\n", ep.bind ? "@" : ">",
 			ep.addr, qw_bus_strerror());
 		return QW_EXIT_FAIL;

@@ -393,6 +393,33 @@ int qw_auth_client(const char *key, const char *server_pub,
 	return 0;
 }
 
+int qw_auth_endpoint(const char *key, const char *server_pub, int bind,
+		     struct qw_bus_curve *c, char *err, size_t errlen)
+{
+	struct qw_auth_key k;
+	int rc;
+
+	if (!bind)
+		return qw_auth_client(key, server_pub, c, err, errlen);
+	memset(c, 0, sizeof *c);
+	if (key == NULL || server_pub != NULL) {
+		auth_err(err, errlen, "a bound socket is a CURVE server: it "
+			 "takes --key (its own secret key), not --server-key");
+		return QW_ERROR(QW_EINVAL);
+	}
+	if (!qw_bus_has_curve()) {
+		auth_err(err, errlen, "this libzmq has no CURVE support");
+		return QW_ERROR(QW_EIO);
+	}
+	if ((rc = qw_auth_key_load(key, 1, &k, err, errlen)) != 0)
+		return rc;
+	c->server = 1;
+	memcpy(c->public_key, k.pub, QW_BUS_KEY_BYTES);
+	memcpy(c->secret_key, k.sec, QW_BUS_KEY_BYTES);
+	qw_auth_key_clear(&k);
+	return 0;
+}
+
 /* ---- the allowed clients ------------------------------------------------ */
 
 static int auth_cmp(const void *a, const void *b)

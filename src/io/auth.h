@@ -64,6 +64,13 @@ void qw_auth_key_clear(struct qw_auth_key *k);
  * with err. */
 int qw_auth_client(const char *key, const char *server_pub,
 		   struct qw_bus_curve *c, char *err, size_t errlen);
+/* The CURVE options of a tool's socket in either role: bound (bind = 1),
+ * a CURVE server with the secret key file key (required; server_pub must
+ * be NULL); connecting, a client as qw_auth_client.  A bound tool has no
+ * allow-list: any client that knows its public key may connect.  0 or an
+ * error with err. */
+int qw_auth_endpoint(const char *key, const char *server_pub, int bind,
+		     struct qw_bus_curve *c, char *err, size_t errlen);
 
 /* The allowed clients: every NAME.pub in a directory. */
 typedef struct qw_auth qw_auth;

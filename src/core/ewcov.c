@@ -29,7 +29,11 @@
  * not learned costs one sweep and leaves the model bit for bit as it was.
  *
  * Storage: both factors packed by columns, so the inner loop runs over
- * contiguous memory and vectorises.  Workload: one sweep of p(p+1)/2
+ * contiguous memory and vectorises.  The sweep is cloned for AVX-512,
+ * AVX2 and baseline x86-64 (chosen at load time); ISO C mode keeps GCC
+ * from contracting a*b+c into FMA, and every element is computed on its
+ * own, so all clones give the same bits: a model moves between machines
+ * and a replay matches the daemon exactly.  Workload: one sweep of p(p+1)/2
  * elements per reading, p from 1 to a few hundred.
  *
  * The effective size behind the limit is tracked by scalar recursions for
@@ -250,7 +254,7 @@ static inline void sweep_pivot(struct sweep_state *st, double uj,
  * in pairs: u_i stays in a register across both, which saves a load and a
  * store per element; each element sees the same operations in the same
  * order as one column at a time. */
-__attribute__((target_clones("arch=x86-64-v3", "default")))
+__attribute__((target_clones("arch=x86-64-v4", "arch=x86-64-v3", "default")))
 static double ewcov_sweep(const double *restrict src,
 			  const double *restrict isrc, double *restrict dst,
 			  double *restrict idst, size_t p, double *restrict u,

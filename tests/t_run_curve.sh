@@ -60,6 +60,11 @@ refused() { # $1: what; $2: expected text in the message
 	rc=$?
 	[ $rc = 2 ] || fail "$1: exit $rc, $(cat "$T/err")"
 	grep -q -- "$2" "$T/err" || fail "$1: message $(cat "$T/err")"
+	# check loads the keys as run does, so it refuses the same file
+	"$QW" check -q -c "$T/qw.ini" 2>"$T/err.check"
+	rc=$?
+	[ $rc = 2 ] || fail "$1: check exit $rc"
+	grep -q -- "$2" "$T/err.check" || fail "$1: check said $(cat "$T/err.check")"
 }
 conf "server_key = $T/server.key
 client_keys = $T/clients"
@@ -94,6 +99,6 @@ rm "$T/clients/typo.pub"
 cp "$T/op.key" "$T/clients/leak.pub"
 refused "secret key in clients" "leak.pub: holds a secret key"
 rm "$T/clients/leak.pub"
-echo "# run: bad key files refused with exit 2"
+echo "# run and check: bad key files refused with exit 2"
 
 cd tests && exec timeout 120 /usr/bin/python3 e2e_curve.py

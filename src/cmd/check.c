@@ -13,6 +13,7 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "auth.h"
 #include "cmd.h"
 #include "config.h"
 
@@ -178,6 +179,21 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	return 0;
 }
 
+/* The [security] key files load as the daemon would load them (modes,
+ * formats, the allow-list), so `check` before a start catches a bad key. */
+static int chk_keys(const struct qw_config *c)
+{
+	struct qw_auth_setup keys;
+	char err[QW_AUTH_ERR_MAX];
+	int rc = qw_auth_setup_load(c, &keys, err, sizeof err);
+
+	qw_auth_setup_free(&keys);
+	if (rc == 0)
+		return 0;
+	fprintf(stderr, "quadwatch check: %s\n", err);
+	return QW_EXIT_USAGE;
+}
+
 int qw_cmd_check(int argc, char **argv)
 {
 	struct qw_config cfg;
@@ -204,7 +220,7 @@ int qw_cmd_check(int argc, char **argv)
 		fprintf(stderr, "quadwatch check: %s\n", err);
 		return rc == QW_ENOMEM ? QW_EXIT_FAIL : QW_EXIT_USAGE;
 	}
-	if (!quiet)
+	if ((rc = chk_keys(&cfg)) == 0 && !quiet)
 		chk_daemon(&cfg);
 	for (i = 0; rc == 0 && i < cfg.ngroups; i++)
 		rc = chk_group(&cfg, &cfg.groups[i], quiet);

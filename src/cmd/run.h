@@ -104,11 +104,7 @@ struct run_totals {
 
 /* CURVE on the daemon's sockets (run_secure.c), from [security]. */
 struct run_secure {
-	int on;                      /* server_key set */
-	struct qw_bus_curve server;  /* bound sockets: CURVE servers */
-	int has_client;              /* publisher_key set */
-	struct qw_bus_curve client;  /* connecting inputs: CURVE clients */
-	qw_auth *allowed;            /* client_keys; NULL: any client key */
+	struct qw_auth_setup k;      /* the keys in force (auth.h) */
 	uint64_t signature;          /* FNV-1a over the keys in force */
 };
 

@@ -43,57 +43,16 @@ static uint64_t sec_signature(const struct run_secure *sec)
 {
 	uint64_t h = 14695981039346656037ULL; /* FNV-1a 64 offset basis */
 
-	if (!sec->on)
+	if (!sec->k.on)
 		return 0;
-	h = sec_fnv(h, sec->server.public_key, QW_BUS_KEY_BYTES);
-	h = sec_fnv(h, sec->server.secret_key, QW_BUS_KEY_BYTES);
-	if (sec->has_client)
-		h = sec_fnv(h, sec->client.server_key, QW_BUS_KEY_BYTES);
+	h = sec_fnv(h, sec->k.server.public_key, QW_BUS_KEY_BYTES);
+	h = sec_fnv(h, sec->k.server.secret_key, QW_BUS_KEY_BYTES);
+	if (sec->k.has_client)
+		h = sec_fnv(h, sec->k.client.server_key, QW_BUS_KEY_BYTES);
 	return h | 1; /* never 0, the signature of "off" */
 }
 
 /* The key files of [security]; err says what is wrong. */
-static int sec_load(const struct qw_config *cfg, struct run_secure *sec,
-		    char *err, size_t errlen)
-{
-	struct qw_auth_key own, peer;
-	int rc;
-
-	if (cfg->server_key[0] == '\0') {
-		if (cfg->client_keys[0] == '\0' && cfg->publisher_key[0] == '\0')
-			return 0;
-		snprintf(err, errlen, "%s: [security] %s needs server_key "
-			 "(this daemon's key pair)", cfg->path,
-			 cfg->client_keys[0] ? "client_keys" : "publisher_key");
-		return QW_ERROR(QW_EFORMAT);
-	}
-	if (!qw_bus_has_curve()) {
-		snprintf(err, errlen, "%s: [security] server_key: this libzmq "
-			 "has no CURVE support", cfg->path);
-		return QW_ERROR(QW_EFORMAT);
-	}
-	if ((rc = qw_auth_key_load(cfg->server_key, 1, &own, err, errlen)))
-		return rc;
-	sec->on = 1;
-	sec->server.server = 1;
-	memcpy(sec->server.public_key, own.pub, QW_BUS_KEY_BYTES);
-	memcpy(sec->server.secret_key, own.sec, QW_BUS_KEY_BYTES);
-	qw_auth_key_clear(&own);
-	if (cfg->publisher_key[0] != '\0') {
-		rc = qw_auth_key_load(cfg->publisher_key, 0, &peer, err, errlen);
-		if (rc != 0)
-			return rc;
-		sec->has_client = 1;
-		sec->client = sec->server;
-		sec->client.server = 0;
-		memcpy(sec->client.server_key, peer.pub, QW_BUS_KEY_BYTES);
-	}
-	if (cfg->client_keys[0] != '\0')
-		return qw_auth_load(cfg->client_keys, &sec->allowed, err,
-				    errlen);
-	return 0;
-}
-
 /* 1 when ep stays on this host: ipc, inproc, or tcp on a loopback
  * address. */
 static int sec_local(const struct qw_endpoint *ep)
@@ -117,7 +76,7 @@ static void sec_report(const struct qw_config *cfg,
 	char z85[QW_AUTH_Z85_LEN + 1];
 	size_t i;
 
-	if (!sec->on) {
+	if (!sec->k.on) {
 		if (cfg->control.addr[0] != '\0' && !sec_local(&cfg->control))
 			qw_log(QW_LOG_WARN, "control %s is reachable from other "
 			       "hosts without CURVE: anyone there can "
@@ -125,16 +84,16 @@ static void sec_report(const struct qw_config *cfg,
 			       "set [security] server_key", cfg->control.addr);
 		return;
 	}
-	qw_auth_z85_encode(sec->server.public_key, z85);
-	if (sec->allowed != NULL)
+	qw_auth_z85_encode(sec->k.server.public_key, z85);
+	if (sec->k.allowed != NULL)
 		qw_log(QW_LOG_INFO, "CURVE on: server key %s, %zu allowed "
-		       "client keys", z85, qw_auth_count(sec->allowed));
+		       "client keys", z85, qw_auth_count(sec->k.allowed));
 	else
 		qw_log(QW_LOG_WARN, "CURVE on: server key %s; no client_keys, "
 		       "so any client that knows the server key is let in",
 		       z85);
 	for (i = 0; i < cfg->ninputs; i++)
-		if (!cfg->inputs[i].bind && !sec->has_client)
+		if (!cfg->inputs[i].bind && !sec->k.has_client)
 			qw_log(QW_LOG_WARN, "input >%s is in the clear (set "
 			       "[security] publisher_key to authenticate the "
 			       "publisher)", cfg->inputs[i].addr);
@@ -169,7 +128,7 @@ int qw_run_secure_build(struct run_daemon *dm, const struct qw_config *cfg,
 	int rc;
 
 	memset(sec, 0, sizeof *sec);
-	rc = sec_load(cfg, sec, err, sizeof err);
+	rc = qw_auth_setup_load(cfg, &sec->k, err, sizeof err);
 	if (rc != 0) {
 		qw_log(QW_LOG_ERROR, "%s", err);
 		qw_run_secure_free(sec);
@@ -184,7 +143,7 @@ int qw_run_secure_build(struct run_daemon *dm, const struct qw_config *cfg,
 		qw_run_secure_free(sec);
 		return QW_ERROR(QW_EFORMAT);
 	}
-	if (sec->on && (rc = sec_zap_open(dm)) != 0) {
+	if (sec->k.on && (rc = sec_zap_open(dm)) != 0) {
 		qw_run_secure_free(sec);
 		return rc;
 	}
@@ -194,20 +153,20 @@ int qw_run_secure_build(struct run_daemon *dm, const struct qw_config *cfg,
 
 void qw_run_secure_free(struct run_secure *sec)
 {
-	qw_auth_free(sec->allowed);
-	explicit_bzero(sec, sizeof *sec);
+	qw_auth_setup_free(&sec->k);
+	sec->signature = 0;
 }
 
 const struct qw_bus_curve *qw_run_secure_for(const struct run_secure *sec,
 					     const struct qw_endpoint *ep,
 					     int is_input)
 {
-	if (!sec->on)
+	if (!sec->k.on)
 		return NULL;
 	if (ep->bind)
-		return &sec->server;
-	if (is_input && sec->has_client)
-		return &sec->client;
+		return &sec->k.server;
+	if (is_input && sec->k.has_client)
+		return &sec->k.client;
 	return NULL;
 }
 
@@ -244,7 +203,7 @@ void qw_run_zap(struct run_daemon *dm)
 			dm->tot.bus_errors++;
 			return;
 		}
-		qw_auth_zap(dm->sec.allowed, &req, &rep, &v);
+		qw_auth_zap(dm->sec.k.allowed, &req, &rep, &v);
 		sec_zap_log(dm, &v);
 		if (qw_bus_send_parts(dm->zap, &rep, 1) != 0)
 			dm->tot.bus_errors++;

@@ -20,6 +20,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "config.h"
 #include "quadwatch.h"
 
 struct qw_auth {
@@ -524,4 +525,54 @@ const struct qw_auth_key *qw_auth_find(const qw_auth *a,
 		return NULL;
 	memcpy(probe.pub, pub, QW_BUS_KEY_BYTES);
 	return bsearch(&probe, a->keys, a->n, sizeof *a->keys, auth_cmp);
+}
+
+/* ---- a configuration's keys ---------------------------------------------- */
+
+int qw_auth_setup_load(const struct qw_config *cfg, struct qw_auth_setup *sec,
+		       char *err, size_t errlen)
+{
+	struct qw_auth_key own, peer;
+	int rc;
+
+	memset(sec, 0, sizeof *sec);
+	if (cfg->server_key[0] == '\0') {
+		if (cfg->client_keys[0] == '\0' && cfg->publisher_key[0] == '\0')
+			return 0;
+		snprintf(err, errlen, "%s: [security] %s needs server_key "
+			 "(this daemon's key pair)", cfg->path,
+			 cfg->client_keys[0] ? "client_keys" : "publisher_key");
+		return QW_ERROR(QW_EFORMAT);
+	}
+	if (!qw_bus_has_curve()) {
+		snprintf(err, errlen, "%s: [security] server_key: this libzmq "
+			 "has no CURVE support", cfg->path);
+		return QW_ERROR(QW_EFORMAT);
+	}
+	if ((rc = qw_auth_key_load(cfg->server_key, 1, &own, err, errlen)))
+		return rc;
+	sec->on = 1;
+	sec->server.server = 1;
+	memcpy(sec->server.public_key, own.pub, QW_BUS_KEY_BYTES);
+	memcpy(sec->server.secret_key, own.sec, QW_BUS_KEY_BYTES);
+	qw_auth_key_clear(&own);
+	if (cfg->publisher_key[0] != '\0') {
+		rc = qw_auth_key_load(cfg->publisher_key, 0, &peer, err, errlen);
+		if (rc != 0)
+			return rc;
+		sec->has_client = 1;
+		sec->client = sec->server;
+		sec->client.server = 0;
+		memcpy(sec->client.server_key, peer.pub, QW_BUS_KEY_BYTES);
+	}
+	if (cfg->client_keys[0] != '\0')
+		return qw_auth_load(cfg->client_keys, &sec->allowed, err,
+				    errlen);
+	return 0;
+}
+
+void qw_auth_setup_free(struct qw_auth_setup *s)
+{
+	qw_auth_free(s->allowed);
+	explicit_bzero(s, sizeof *s);
 }

@@ -74,6 +74,25 @@ int qw_auth_endpoint(const char *key, const char *server_pub, int bind,
 
 /* The allowed clients: every NAME.pub in a directory. */
 typedef struct qw_auth qw_auth;
+
+/* A configuration's [security] keys, loaded and checked: what the daemon
+ * applies to its sockets, and what `check` validates. */
+struct qw_auth_setup {
+	int on;                      /* server_key set */
+	struct qw_bus_curve server;  /* bound sockets: CURVE servers */
+	int has_client;              /* publisher_key set */
+	struct qw_bus_curve client;  /* connecting inputs: CURVE clients */
+	qw_auth *allowed;            /* client_keys; NULL: any client key */
+};
+struct qw_config;
+/* Loads cfg's key files into *s (zeroed first): server_key (a secret,
+ * mode 0600), publisher_key (a public key), client_keys (a directory of
+ * .pub files).  client_keys or publisher_key without server_key is an
+ * error.  0, or an error with "FILE: ..." in err; free *s either way. */
+int qw_auth_setup_load(const struct qw_config *cfg, struct qw_auth_setup *s,
+		       char *err, size_t errlen);
+/* Wipes the secrets and frees the allow-list. */
+void qw_auth_setup_free(struct qw_auth_setup *s);
 /* Loads dir; an unreadable directory or any bad .pub file is an error
  * (a typo must not silently lock out, or let in, a client).  0 or
  * QW_EFORMAT/QW_EIO/QW_ENOMEM with err; *out NULL on error. */

@@ -21,6 +21,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "bytes.h"
 #include "quadwatch.h"
 
 #define CAPTURE_BUF (64u << 10) /* bytes of stdio buffer per writer */
@@ -31,50 +32,6 @@
 #define CAPTURE_TIME_BYTES 8u   /* record fields, bytes */
 #define CAPTURE_TLEN_BYTES 2u
 #define CAPTURE_PLEN_BYTES 4u
-
-/* ---- byte order ---------------------------------------------------------- */
-
-static void capture_wr16(unsigned char *d, uint16_t v)
-{
-	v = htole16(v);
-	memcpy(d, &v, sizeof v);
-}
-
-static void capture_wr32(unsigned char *d, uint32_t v)
-{
-	v = htole32(v);
-	memcpy(d, &v, sizeof v);
-}
-
-static void capture_wr64(unsigned char *d, uint64_t v)
-{
-	v = htole64(v);
-	memcpy(d, &v, sizeof v);
-}
-
-static uint16_t capture_rd16(const unsigned char *s)
-{
-	uint16_t v;
-
-	memcpy(&v, s, sizeof v);
-	return le16toh(v);
-}
-
-static uint32_t capture_rd32(const unsigned char *s)
-{
-	uint32_t v;
-
-	memcpy(&v, s, sizeof v);
-	return le32toh(v);
-}
-
-static uint64_t capture_rd64(const unsigned char *s)
-{
-	uint64_t v;
-
-	memcpy(&v, s, sizeof v);
-	return le64toh(v);
-}
 
 /* ---- writer -------------------------------------------------------------- */
 
@@ -119,9 +76,9 @@ static int capture_part_open(struct qw_capture_writer *w)
 	}
 	setvbuf(w->fp, NULL, _IOFBF, CAPTURE_BUF);
 	memcpy(h, QW_CAPTURE_MAGIC, QW_CAPTURE_MAGIC_LEN);
-	capture_wr16(h + CAPTURE_OFF_VERSION, QW_CAPTURE_VERSION);
-	capture_wr32(h + CAPTURE_OFF_PART, w->part);
-	capture_wr32(h + CAPTURE_OFF_FLAGS, 0);
+	qw_le_put16(h + CAPTURE_OFF_VERSION, QW_CAPTURE_VERSION);
+	qw_le_put32(h + CAPTURE_OFF_PART, w->part);
+	qw_le_put32(h + CAPTURE_OFF_FLAGS, 0);
 	if (fwrite(h, sizeof h, 1, w->fp) != 1)
 		return QW_ERROR(QW_EIO);
 	w->size = QW_CAPTURE_HEADER;
@@ -203,9 +160,9 @@ int qw_capture_writer_put(struct qw_capture_writer *w, double time,
 	if (w->fp == NULL)
 		return QW_ERROR(QW_EIO); /* an earlier rotation failed */
 	memcpy(&bits, &time, sizeof bits);
-	capture_wr64(head, bits);
-	capture_wr16(head + CAPTURE_TIME_BYTES, (uint16_t)tlen);
-	capture_wr32(plen_le, (uint32_t)plen);
+	qw_le_put64(head, bits);
+	qw_le_put16(head + CAPTURE_TIME_BYTES, (uint16_t)tlen);
+	qw_le_put32(plen_le, (uint32_t)plen);
 	if (fwrite(head, sizeof head, 1, w->fp) != 1 ||
 	    (tlen > 0 && fwrite(topic, tlen, 1, w->fp) != 1) ||
 	    fwrite(plen_le, sizeof plen_le, 1, w->fp) != 1 ||
@@ -293,11 +250,11 @@ static int capture_header(struct qw_capture_reader *r)
 	}
 	if (have < QW_CAPTURE_HEADER)
 		return QW_ERROR(QW_ETRUNC);
-	if (capture_rd16(h + CAPTURE_OFF_VERSION) != QW_CAPTURE_VERSION)
+	if (qw_le_get16(h + CAPTURE_OFF_VERSION) != QW_CAPTURE_VERSION)
 		return QW_ERROR(QW_EVERSION);
-	if (capture_rd32(h + CAPTURE_OFF_FLAGS) != 0)
+	if (qw_le_get32(h + CAPTURE_OFF_FLAGS) != 0)
 		return QW_ERROR(QW_EFORMAT);
-	r->part = capture_rd32(h + CAPTURE_OFF_PART);
+	r->part = qw_le_get32(h + CAPTURE_OFF_PART);
 	return 0;
 }
 
@@ -370,9 +327,9 @@ static int capture_record(struct qw_capture_reader *r)
 		return QW_ERROR(QW_ETRUNC);
 	if ((rc = capture_read(r, head, sizeof head)) != 0)
 		return rc;
-	bits = capture_rd64(head);
+	bits = qw_le_get64(head);
 	memcpy(&r->rec.time, &bits, sizeof bits);
-	tlen = capture_rd16(head + CAPTURE_TIME_BYTES);
+	tlen = qw_le_get16(head + CAPTURE_TIME_BYTES);
 	if (!isfinite(r->rec.time) || tlen > QW_CAPTURE_TOPIC_MAX)
 		return QW_ERROR(QW_EFORMAT);
 	if (left - sizeof head < tlen + CAPTURE_PLEN_BYTES)
@@ -381,7 +338,7 @@ static int capture_record(struct qw_capture_reader *r)
 	    (rc = capture_read(r, plen_le, sizeof plen_le)) != 0)
 		return rc;
 	r->topic[tlen] = '\0';
-	plen = capture_rd32(plen_le);
+	plen = qw_le_get32(plen_le);
 	if (plen > r->max_payload)
 		return QW_ERROR(QW_EOVERSIZE);
 	if (r->size - r->off < plen)

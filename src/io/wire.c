@@ -18,7 +18,7 @@
  * under memory exhaustion a JSON value can be misread (test_wire counts
  * this); the binary and text paths do not allocate and cannot.
  *
- * Byte order is converted only here, with le32toh/le64toh (no-ops on little
+ * Byte order is converted only here, through bytes.h (no-ops on little
  * endian hosts, byte swaps elsewhere).  Times travel as int64 nanoseconds on
  * the binary wire and as double seconds everywhere else; every format
  * accepts and writes the same range, |t| <= QW_WIRE_TIME_MAX (years 1678 to
@@ -32,6 +32,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "bytes.h"
 #include "num.h"
 #include "quadwatch.h"
 
@@ -52,34 +53,6 @@
 #define WIRE_INF_BITS UINT64_C(0x7ff0000000000000)
 
 /* ---- byte order ---------------------------------------------------------- */
-
-static uint32_t wire_rd32(const unsigned char *s)
-{
-	uint32_t v;
-
-	memcpy(&v, s, sizeof v);
-	return le32toh(v);
-}
-
-static uint64_t wire_rd64(const unsigned char *s)
-{
-	uint64_t v;
-
-	memcpy(&v, s, sizeof v);
-	return le64toh(v);
-}
-
-static void wire_wr32(unsigned char *d, uint32_t v)
-{
-	v = htole32(v);
-	memcpy(d, &v, sizeof v);
-}
-
-static void wire_wr64(unsigned char *d, uint64_t v)
-{
-	v = htole64(v);
-	memcpy(d, &v, sizeof v);
-}
 
 /* ---- time ---------------------------------------------------------------- */
 
@@ -140,7 +113,7 @@ static int wire_binary_records(const unsigned char *s, size_t n,
 	double *x;
 
 	for (i = 0; i < n; i++) {
-		ns = (int64_t)wire_rd64(s);
+		ns = (int64_t)qw_le_get64(s);
 		if (ns > WIRE_MAX_NS || ns < -WIRE_MAX_NS)
 			return QW_ERROR(QW_ERANGE);
 		b->t[i] = wire_ns_to_s(ns);
@@ -148,7 +121,7 @@ static int wire_binary_records(const unsigned char *s, size_t n,
 		x = b->x + i * p;
 		inf = 0;
 		for (j = 0; j < p; j++) {
-			u = wire_rd64(s + j * WIRE_VALUE_BYTES);
+			u = qw_le_get64(s + j * WIRE_VALUE_BYTES);
 			inf |= (uint64_t)((u & WIRE_ABS_MASK) == WIRE_INF_BITS);
 			memcpy(&x[j], &u, sizeof u);
 		}
@@ -169,11 +142,11 @@ static int wire_decode_binary(const unsigned char *s, size_t len,
 
 	if (len < QW_WIRE_HEADER)
 		return QW_ERROR(QW_ETRUNC);
-	p = wire_rd32(s + WIRE_OFF_P);
-	n = wire_rd32(s + WIRE_OFF_N);
+	p = qw_le_get32(s + WIRE_OFF_P);
+	n = qw_le_get32(s + WIRE_OFF_N);
 	if ((size_t)p != b->p)
 		return QW_ERROR(QW_ECOUNT);
-	if (wire_rd32(s + WIRE_OFF_FLAGS) != 0 || n == 0)
+	if (qw_le_get32(s + WIRE_OFF_FLAGS) != 0 || n == 0)
 		return QW_ERROR(QW_EFORMAT);
 	/* A count whose size overflows size_t promises more bytes than any
 	 * frame can hold: that is a short frame, never a wrapped length. */
@@ -187,7 +160,7 @@ static int wire_decode_binary(const unsigned char *s, size_t len,
 	rc = wire_binary_records(s + QW_WIRE_HEADER, n, b);
 	if (rc != 0)
 		return rc;
-	b->seq = wire_rd64(s + WIRE_OFF_SEQ);
+	b->seq = qw_le_get64(s + WIRE_OFF_SEQ);
 	b->has_seq = 1;
 	b->n = n;
 	return 0;
@@ -204,21 +177,21 @@ size_t qw_wire_encode_binary(void *buf, size_t cap, size_t p, size_t n,
 	if (need == 0 || need > cap || p > UINT32_MAX || n > UINT32_MAX)
 		return 0;
 	memcpy(d, QW_WIRE_MAGIC, WIRE_MAGIC_LEN);
-	wire_wr32(d + WIRE_OFF_P, (uint32_t)p);
-	wire_wr32(d + WIRE_OFF_N, (uint32_t)n);
-	wire_wr32(d + WIRE_OFF_FLAGS, 0);
-	wire_wr64(d + WIRE_OFF_SEQ, seq);
+	qw_le_put32(d + WIRE_OFF_P, (uint32_t)p);
+	qw_le_put32(d + WIRE_OFF_N, (uint32_t)n);
+	qw_le_put32(d + WIRE_OFF_FLAGS, 0);
+	qw_le_put64(d + WIRE_OFF_SEQ, seq);
 	d += QW_WIRE_HEADER;
 	for (i = 0; i < n; i++) {
 		if (wire_s_to_ns(t[i], &ns) != 0)
 			return 0;
-		wire_wr64(d, (uint64_t)ns);
+		qw_le_put64(d, (uint64_t)ns);
 		d += WIRE_TIME_BYTES;
 		for (j = 0; j < p; j++) {
 			memcpy(&u, &x[i * p + j], sizeof u);
 			if ((u & WIRE_ABS_MASK) == WIRE_INF_BITS)
 				return 0;
-			wire_wr64(d, u);
+			qw_le_put64(d, u);
 			d += WIRE_VALUE_BYTES;
 		}
 	}
@@ -472,4 +445,23 @@ int qw_wire_decode(const void *buf, size_t len, struct qw_wire_batch *b)
 	if (rc != 0)
 		b->n = 0;
 	return rc;
+}
+
+size_t qw_wire_buffer_len(size_t max_frame, size_t p)
+{
+	size_t rec = sizeof(int64_t) + p * sizeof(double);
+	size_t cap = max_frame > QW_WIRE_HEADER
+		     ? (max_frame - QW_WIRE_HEADER) / rec : 0;
+
+	return (cap < 1 ? 1 : cap) * (1 + p);
+}
+
+void qw_wire_batch_init(struct qw_wire_batch *b, size_t p, double *buf,
+			size_t len)
+{
+	memset(b, 0, sizeof *b);
+	b->p = p;
+	b->cap = len / (1 + p);
+	b->t = buf;
+	b->x = buf + b->cap;
 }

@@ -19,6 +19,7 @@
 #include "cmd.h"
 #include "log.h"
 #include "replay.h"
+#include "verdict.h"
 #include "wire.h"
 
 static void rp_usage(FILE *f)
@@ -104,23 +105,6 @@ static int rp_args(int argc, char **argv, struct replay_opts *o)
 	return 0;
 }
 
-/* Decode buffer for captures: as the daemon's (run_batch_len). */
-static size_t rp_batch_len(const struct qw_config *c)
-{
-	size_t i, best = 0;
-
-	for (i = 0; i < c->ngroups; i++) {
-		size_t rec = sizeof(int64_t) + c->groups[i].p * sizeof(double);
-		size_t cap = c->max_frame > QW_WIRE_HEADER
-			     ? (c->max_frame - QW_WIRE_HEADER) / rec : 0;
-		size_t need = (cap < 1 ? 1 : cap) * (1 + c->groups[i].p);
-
-		if (need > best)
-			best = need;
-	}
-	return best;
-}
-
 static int rp_group_alloc(struct replay *rp, struct replay_group *g,
 			  const struct qw_group_conf *gc)
 {
@@ -190,7 +174,7 @@ static int rp_setup(struct replay *rp)
 		return QW_EXIT_USAGE;
 	}
 	rp->groups = calloc(rp->cfg.ngroups, sizeof *rp->groups);
-	rp->batch_len = rp_batch_len(&rp->cfg);
+	rp->batch_len = qw_verdict_buffer_len(&rp->cfg);
 	rp->batch = malloc(rp->batch_len * sizeof *rp->batch);
 	rp->alert_buf = malloc(RP_ALERT_MAX);
 	rp->events = json_array();

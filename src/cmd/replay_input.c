@@ -225,11 +225,7 @@ static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
 	if (!g->wanted)
 		return;
 	g->played = 1;
-	memset(&b, 0, sizeof b);
-	b.p = g->conf->p;
-	b.cap = rp->batch_len / (1 + b.p);
-	b.t = rp->batch;
-	b.x = rp->batch + b.cap;
+	qw_wire_batch_init(&b, g->conf->p, rp->batch, rp->batch_len);
 	rc = qw_wire_decode(rec->payload, rec->plen, &b);
 	if (rc != 0) {
 		g->rejected[rp_wire_cause(rc)]++;

@@ -173,11 +173,7 @@ static void run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 		run_reject(dm, g, RUN_OVERSIZE, m);
 		return;
 	}
-	memset(&b, 0, sizeof b);
-	b.p = g->conf->p;
-	b.cap = dm->batch_len / (1 + b.p);
-	b.t = dm->batch;
-	b.x = dm->batch + b.cap;
+	qw_wire_batch_init(&b, g->conf->p, dm->batch, dm->batch_len);
 	rc = qw_wire_decode(m->body, m->body_len, &b);
 	if (rc != 0) {
 		run_reject(dm, g, run_wire_cause(rc), m);

@@ -18,6 +18,7 @@
 #include <string.h>
 
 #include "run.h"
+#include "verdict.h"
 
 /* What a build produces: the daemon's parts, new or carried over. */
 struct run_build {
@@ -165,24 +166,6 @@ static int run_group_build(const struct run_daemon *dm, struct run_build *b,
 	return 0;
 }
 
-/* Decode buffer: the most readings a max_frame binary frame can hold for
- * the group's p, times and values, maximised over the groups. */
-static size_t run_batch_len(const struct qw_config *c)
-{
-	size_t i, best = 0;
-
-	for (i = 0; i < c->ngroups; i++) {
-		size_t rec = sizeof(int64_t) + c->groups[i].p * sizeof(double);
-		size_t cap = c->max_frame > QW_WIRE_HEADER
-			     ? (c->max_frame - QW_WIRE_HEADER) / rec : 0;
-		size_t need = (cap < 1 ? 1 : cap) * (1 + c->groups[i].p);
-
-		if (need > best)
-			best = need;
-	}
-	return best;
-}
-
 static int run_open(struct run_daemon *dm, int kind,
 		    const struct qw_endpoint *ep, const struct qw_bus_opts *o,
 		    qw_bus_sock **out, const char *what)
@@ -296,7 +279,7 @@ static int run_build(struct run_daemon *dm, struct run_build *b)
 
 	b->groups = calloc(n, sizeof *b->groups);
 	b->keep = calloc(n, sizeof *b->keep);
-	b->batch_len = run_batch_len(&b->cfg);
+	b->batch_len = qw_verdict_buffer_len(&b->cfg);
 	b->batch = malloc(b->batch_len * sizeof *b->batch);
 	b->body = malloc(b->cfg.max_frame > 0 ? b->cfg.max_frame : 1);
 	if (b->groups == NULL || b->keep == NULL || b->batch == NULL ||
@@ -363,6 +346,24 @@ static void run_sockets_commit(struct run_daemon *dm, struct run_build *b)
 	dm->control = b->control;
 }
 
+/* Frees what a configuration built: keys, groups and their detectors, the
+ * topic table, the receive and decode buffers, the config itself.  The
+ * pointers are left dangling: the caller installs new ones or stops. */
+static void run_free_config_state(struct run_daemon *dm)
+{
+	size_t i;
+
+	qw_run_secure_free(&dm->sec);
+	if (dm->groups != NULL)
+		for (i = 0; i < dm->cfg.ngroups; i++)
+			qw_detector_free(dm->groups[i].det);
+	free(dm->groups);
+	free(dm->topics.slot);
+	free(dm->msg.body);
+	free(dm->batch);
+	qw_config_free(&dm->cfg);
+}
+
 /* Installs b; nothing here can fail.  b is left empty. */
 static void run_commit(struct run_daemon *dm, struct run_build *b)
 {
@@ -374,16 +375,8 @@ static void run_commit(struct run_daemon *dm, struct run_build *b)
 			dm->groups[b->keep[i]].det = NULL;
 		}
 	run_sockets_commit(dm, b);
-	qw_run_secure_free(&dm->sec);
+	run_free_config_state(dm);
 	dm->sec = b->sec;
-	if (dm->groups != NULL)
-		for (i = 0; i < dm->cfg.ngroups; i++)
-			qw_detector_free(dm->groups[i].det);
-	free(dm->groups);
-	free(dm->topics.slot);
-	free(dm->msg.body);
-	free(dm->batch);
-	qw_config_free(&dm->cfg);
 	dm->cfg = b->cfg;
 	for (i = 0; i < dm->cfg.ngroups; i++)
 		b->groups[i].conf = &dm->cfg.groups[i]; /* cfg moved */
@@ -494,26 +487,16 @@ int qw_run_reload(struct run_daemon *dm)
 
 void qw_run_teardown(struct run_daemon *dm)
 {
-	struct run_build empty;
 	size_t i;
 
-	memset(&empty, 0, sizeof empty);
 	for (i = 0; i < QW_CONFIG_MAX_INPUTS; i++)
 		qw_bus_close(dm->inputs[i]);
 	qw_bus_close(dm->alerts);
 	qw_bus_close(dm->control);
 	qw_bus_close(dm->control_retired);
 	qw_bus_close(dm->zap);
-	qw_run_secure_free(&dm->sec);
-	if (dm->groups != NULL)
-		for (i = 0; i < dm->cfg.ngroups; i++)
-			qw_detector_free(dm->groups[i].det);
-	free(dm->groups);
-	free(dm->topics.slot);
-	free(dm->msg.body);
-	free(dm->batch);
+	run_free_config_state(dm);
 	free(dm->alert);
-	qw_config_free(&dm->cfg);
 	qw_bus_poller_free(dm->poller);
 	qw_bus_free(dm->bus);
 	memset(dm, 0, sizeof *dm);

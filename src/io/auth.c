@@ -13,7 +13,6 @@
 #include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
-#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -21,6 +20,7 @@
 #include <unistd.h>
 
 #include "config.h"
+#include "log.h"
 #include "quadwatch.h"
 
 struct qw_auth {
@@ -34,20 +34,6 @@ static const char z85_chars[] =
 	".-:+=^!/*?&<>()[]{}@%$#";
 #define Z85_BASE 85u
 #define Z85_GROUP 5  /* characters per four bytes */
-
-static void auth_err(char *err, size_t errlen, const char *fmt, ...)
-	__attribute__((format(printf, 3, 4)));
-
-static void auth_err(char *err, size_t errlen, const char *fmt, ...)
-{
-	va_list ap;
-
-	if (err == NULL || errlen == 0)
-		return;
-	va_start(ap, fmt);
-	vsnprintf(err, errlen, fmt, ap);
-	va_end(ap);
-}
 
 void qw_auth_z85_encode(const unsigned char key[QW_BUS_KEY_BYTES],
 			char out[QW_AUTH_Z85_LEN + 1])
@@ -150,7 +136,7 @@ int qw_auth_key_parse(const char *text, size_t len, const char *name,
 		if (r == 0)
 			continue;
 		if (r < 0) {
-			auth_err(err, errlen, "%s:%d: expected 'public = KEY' "
+			qw_errbuf(err, errlen, "%s:%d: expected 'public = KEY' "
 				 "or 'secret = KEY'", name, line);
 			goto fail;
 		}
@@ -161,19 +147,19 @@ int qw_auth_key_parse(const char *text, size_t len, const char *name,
 			dst = k->sec;
 			have = &k->has_secret;
 		} else {
-			auth_err(err, errlen, "%s:%d: unknown key '%.*s' "
+			qw_errbuf(err, errlen, "%s:%d: unknown key '%.*s' "
 				 "(public or secret)", name, line,
 				 (int)(klen < 32 ? klen : 32), key);
 			goto fail;
 		}
 		if (*have) {
-			auth_err(err, errlen, "%s:%d: '%.*s' given twice",
+			qw_errbuf(err, errlen, "%s:%d: '%.*s' given twice",
 				 name, line, (int)klen, key);
 			goto fail;
 		}
 		if (memchr(val, '\0', vlen) != NULL ||
 		    qw_auth_z85_decode(val, vlen, dst) != 0) {
-			auth_err(err, errlen, "%s:%d: %.*s: expected %d Z85 "
+			qw_errbuf(err, errlen, "%s:%d: %.*s: expected %d Z85 "
 				 "characters", name, line, (int)klen, key,
 				 QW_AUTH_Z85_LEN);
 			goto fail;
@@ -181,7 +167,7 @@ int qw_auth_key_parse(const char *text, size_t len, const char *name,
 		*have = 1;
 	}
 	if (!have_pub) {
-		auth_err(err, errlen, "%s: no 'public = KEY' line", name);
+		qw_errbuf(err, errlen, "%s: no 'public = KEY' line", name);
 		goto fail;
 	}
 	return 0;
@@ -213,23 +199,23 @@ static int auth_read(const char *path, int secret, char *buf, size_t *len,
 	int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOCTTY), rc = 0;
 
 	if (fd < 0) {
-		auth_err(err, errlen, "%s: %s", path, strerror(errno));
+		qw_errbuf(err, errlen, "%s: %s", path, strerror(errno));
 		return QW_ERROR(QW_EFORMAT);
 	}
 	if (fstat(fd, &st) != 0 || !S_ISREG(st.st_mode)) {
-		auth_err(err, errlen, "%s: not a regular file", path);
+		qw_errbuf(err, errlen, "%s: not a regular file", path);
 		rc = QW_ERROR(QW_EFORMAT);
 	} else if (secret && (st.st_mode & 077) != 0) {
-		auth_err(err, errlen, "%s: secret key file is open to group "
+		qw_errbuf(err, errlen, "%s: secret key file is open to group "
 			 "or others (mode %04o); refusing it: chmod 600 %s",
 			 path, (unsigned)(st.st_mode & 07777), path);
 		rc = QW_ERROR(QW_EFORMAT);
 	} else if (st.st_size > QW_AUTH_FILE_MAX) {
-		auth_err(err, errlen, "%s: %lld bytes, a key file has at most "
+		qw_errbuf(err, errlen, "%s: %lld bytes, a key file has at most "
 			 "%d", path, (long long)st.st_size, QW_AUTH_FILE_MAX);
 		rc = QW_ERROR(QW_EFORMAT);
 	} else if ((n = read(fd, buf, QW_AUTH_FILE_MAX)) < 0) {
-		auth_err(err, errlen, "%s: %s", path, strerror(errno));
+		qw_errbuf(err, errlen, "%s: %s", path, strerror(errno));
 		rc = QW_ERROR(QW_EIO);
 	} else {
 		*len = (size_t)n;
@@ -255,16 +241,16 @@ int qw_auth_key_load(const char *path, int need_secret,
 		return rc;
 	auth_stem(path, k->name, sizeof k->name);
 	if (need_secret && !k->has_secret) {
-		auth_err(err, errlen, "%s: no 'secret = KEY' line (a public "
+		qw_errbuf(err, errlen, "%s: no 'secret = KEY' line (a public "
 			 "key file where a secret one was expected)", path);
 		rc = QW_ERROR(QW_EFORMAT);
 	} else if (!need_secret && k->has_secret) {
-		auth_err(err, errlen, "%s: holds a secret key; give the public "
+		qw_errbuf(err, errlen, "%s: holds a secret key; give the public "
 			 "file (NAME.pub) here", path);
 		rc = QW_ERROR(QW_EFORMAT);
 	} else if (need_secret && (qw_bus_curve_public(k->sec, pub) != 0 ||
 				   memcmp(pub, k->pub, sizeof pub) != 0)) {
-		auth_err(err, errlen, "%s: the public key is not the one of "
+		qw_errbuf(err, errlen, "%s: the public key is not the one of "
 			 "the secret key", path);
 		rc = QW_ERROR(QW_EFORMAT);
 	}
@@ -341,20 +327,20 @@ int qw_auth_key_write(const char *path, const struct qw_auth_key *k,
 	int rc = 0;
 
 	if (len == 0) {
-		auth_err(err, errlen, "%s: key name too long", path);
+		qw_errbuf(err, errlen, "%s: key name too long", path);
 		return QW_ERROR(QW_EINVAL);
 	}
 	if (auth_tmp_write(path, text, len, secret ? AUTH_MODE_SECRET
 			   : AUTH_MODE_PUBLIC, tmp, sizeof tmp) != 0) {
-		auth_err(err, errlen, "%s: %s", path, strerror(errno));
+		qw_errbuf(err, errlen, "%s: %s", path, strerror(errno));
 		rc = QW_ERROR(QW_EIO);
 	} else if (force ? rename(tmp, path) != 0 : link(tmp, path) != 0) {
 		/* link, not rename: it fails when path exists, atomically */
 		if (errno == EEXIST)
-			auth_err(err, errlen, "%s exists; not replaced (--force "
+			qw_errbuf(err, errlen, "%s exists; not replaced (--force "
 				 "replaces it)", path);
 		else
-			auth_err(err, errlen, "%s: %s", path, strerror(errno));
+			qw_errbuf(err, errlen, "%s: %s", path, strerror(errno));
 		unlink(tmp);
 		rc = QW_ERROR(QW_EIO);
 	} else if (!force) {
@@ -372,7 +358,7 @@ int qw_auth_client(const char *key, const char *server_pub,
 
 	memset(c, 0, sizeof *c);
 	if (!qw_bus_has_curve()) {
-		auth_err(err, errlen, "this libzmq has no CURVE support");
+		qw_errbuf(err, errlen, "this libzmq has no CURVE support");
 		return QW_ERROR(QW_EIO);
 	}
 	if ((rc = qw_auth_key_load(server_pub, 0, &k, err, errlen)) != 0)
@@ -380,7 +366,7 @@ int qw_auth_client(const char *key, const char *server_pub,
 	memcpy(c->server_key, k.pub, QW_BUS_KEY_BYTES);
 	if (key == NULL) {
 		if (qw_bus_curve_keypair(c->public_key, c->secret_key) != 0) {
-			auth_err(err, errlen, "no session key pair: %s",
+			qw_errbuf(err, errlen, "no session key pair: %s",
 				 qw_bus_strerror());
 			return QW_ERROR(QW_EIO);
 		}
@@ -404,12 +390,12 @@ int qw_auth_endpoint(const char *key, const char *server_pub, int bind,
 		return qw_auth_client(key, server_pub, c, err, errlen);
 	memset(c, 0, sizeof *c);
 	if (key == NULL || server_pub != NULL) {
-		auth_err(err, errlen, "a bound socket is a CURVE server: it "
+		qw_errbuf(err, errlen, "a bound socket is a CURVE server: it "
 			 "takes --key (its own secret key), not --server-key");
 		return QW_ERROR(QW_EINVAL);
 	}
 	if (!qw_bus_has_curve()) {
-		auth_err(err, errlen, "this libzmq has no CURVE support");
+		qw_errbuf(err, errlen, "this libzmq has no CURVE support");
 		return QW_ERROR(QW_EIO);
 	}
 	if ((rc = qw_auth_key_load(key, 1, &k, err, errlen)) != 0)
@@ -450,13 +436,13 @@ static int auth_scan(DIR *d, const char *dir, qw_auth *a, char *err,
 		if (!auth_is_pub(e->d_name))
 			continue;
 		if (a->n == QW_AUTH_MAX_KEYS) {
-			auth_err(err, errlen, "%s: more than %d keys", dir,
+			qw_errbuf(err, errlen, "%s: more than %d keys", dir,
 				 QW_AUTH_MAX_KEYS);
 			return QW_ERROR(QW_EFORMAT);
 		}
 		if ((size_t)snprintf(path, sizeof path, "%s/%s", dir,
 				     e->d_name) >= sizeof path) {
-			auth_err(err, errlen, "%s/%s: path too long", dir,
+			qw_errbuf(err, errlen, "%s/%s: path too long", dir,
 				 e->d_name);
 			return QW_ERROR(QW_EFORMAT);
 		}
@@ -466,7 +452,7 @@ static int auth_scan(DIR *d, const char *dir, qw_auth *a, char *err,
 		a->n++;
 	}
 	if (errno != 0) {
-		auth_err(err, errlen, "%s: %s", dir, strerror(errno));
+		qw_errbuf(err, errlen, "%s: %s", dir, strerror(errno));
 		return QW_ERROR(QW_EIO);
 	}
 	return 0;
@@ -483,12 +469,12 @@ int qw_auth_load(const char *dir, qw_auth **out, char *err, size_t errlen)
 	if (a == NULL || (a->keys = calloc(QW_AUTH_MAX_KEYS,
 					   sizeof *a->keys)) == NULL) {
 		free(a);
-		auth_err(err, errlen, "%s: out of memory", dir);
+		qw_errbuf(err, errlen, "%s: out of memory", dir);
 		return QW_ERROR(QW_ENOMEM);
 	}
 	d = opendir(dir);
 	if (d == NULL) {
-		auth_err(err, errlen, "%s: %s", dir, strerror(errno));
+		qw_errbuf(err, errlen, "%s: %s", dir, strerror(errno));
 		qw_auth_free(a);
 		return QW_ERROR(QW_EFORMAT);
 	}

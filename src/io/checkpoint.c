@@ -28,7 +28,6 @@
  * default); p = 64 is ~17 kB, p = 4096 ~67 MB.  Allocation is fine here. */
 #include <errno.h>
 #include <fcntl.h>
-#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -36,7 +35,9 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "bytes.h"
 #include "checkpoint.h"
+#include "log.h"
 
 #define CKPT_CRC_POLY 0xEDB88320u /* CRC-32 IEEE 802.3, reflected */
 #define CKPT_REJECT_TRIES 100     /* names tried when setting a file aside */
@@ -62,33 +63,6 @@ uint32_t qw_ckpt_crc32(uint32_t crc, const void *buf, size_t len)
 		crc = (crc >> 4) ^ tab[crc & 0xfu];
 	}
 	return ~crc;
-}
-
-static void ckpt_put32(unsigned char *b, uint32_t v)
-{
-	size_t i;
-
-	for (i = 0; i < 4; i++)
-		b[i] = (unsigned char)(v >> (8 * i));
-}
-
-static void ckpt_put64(unsigned char *b, uint64_t v)
-{
-	size_t i;
-
-	for (i = 0; i < 8; i++)
-		b[i] = (unsigned char)(v >> (8 * i));
-}
-
-static uint32_t ckpt_get32(const unsigned char *b)
-{
-	return (uint32_t)b[0] | (uint32_t)b[1] << 8 | (uint32_t)b[2] << 16 |
-	       (uint32_t)b[3] << 24;
-}
-
-static uint64_t ckpt_get64(const unsigned char *b)
-{
-	return (uint64_t)ckpt_get32(b) | (uint64_t)ckpt_get32(b + 4) << 32;
 }
 
 static int ckpt_name_ok(const char *name, size_t *len)
@@ -119,17 +93,17 @@ int qw_ckpt_encode(void *out, size_t cap, const struct qw_ckpt_id *id,
 	if (cap < total)
 		return QW_ERROR(QW_EOVERSIZE);
 	memcpy(b, QW_CKPT_MAGIC, QW_CKPT_MAGIC_LEN);
-	ckpt_put32(b + 8, QW_CKPT_VERSION);
+	qw_le_put32(b + 8, QW_CKPT_VERSION);
 	memcpy(b + 12, &order, sizeof order); /* host order, on purpose */
-	ckpt_put64(b + 16, id->fingerprint);
-	ckpt_put32(b + 24, id->p);
-	ckpt_put32(b + 28, (uint32_t)n);
-	ckpt_put64(b + 32, (uint64_t)saved_ns);
-	ckpt_put64(b + 40, (uint64_t)state_len);
+	qw_le_put64(b + 16, id->fingerprint);
+	qw_le_put32(b + 24, id->p);
+	qw_le_put32(b + 28, (uint32_t)n);
+	qw_le_put64(b + 32, (uint64_t)saved_ns);
+	qw_le_put64(b + 40, (uint64_t)state_len);
 	memcpy(b + QW_CKPT_HEADER, id->group, n);
 	if (state_len > 0 && state != b + QW_CKPT_HEADER + n)
 		memcpy(b + QW_CKPT_HEADER + n, state, state_len);
-	ckpt_put32(b + total - QW_CKPT_TRAILER,
+	qw_le_put32(b + total - QW_CKPT_TRAILER,
 		   qw_ckpt_crc32(0, b, total - QW_CKPT_TRAILER));
 	*len = total;
 	return 0;
@@ -165,11 +139,11 @@ int qw_ckpt_decode(const void *buf, size_t len, const struct qw_ckpt_id *want,
 		return QW_ERROR(QW_EFORMAT);
 	if (len < QW_CKPT_HEADER)
 		return QW_ERROR(QW_ETRUNC);
-	v->version = ckpt_get32(b + 8);
+	v->version = qw_le_get32(b + 8);
 	if (v->version != QW_CKPT_VERSION)
 		return QW_ERROR(QW_EVERSION);
-	name_len = ckpt_get32(b + 28);
-	state_len = ckpt_get64(b + 40);
+	name_len = qw_le_get32(b + 28);
+	state_len = qw_le_get64(b + 40);
 	if (name_len < 1 || name_len > QW_CKPT_NAME_MAX ||
 	    state_len > QW_CKPT_FILE_MAX)
 		return QW_ERROR(QW_EFORMAT);
@@ -180,14 +154,14 @@ int qw_ckpt_decode(const void *buf, size_t len, const struct qw_ckpt_id *want,
 	if (len > total)
 		return QW_ERROR(QW_EFORMAT); /* trailing bytes */
 	if (qw_ckpt_crc32(0, b, len - QW_CKPT_TRAILER) !=
-	    ckpt_get32(b + len - QW_CKPT_TRAILER))
+	    qw_le_get32(b + len - QW_CKPT_TRAILER))
 		return QW_ERROR(QW_ECHECKSUM);
 	memcpy(&order, b + 12, sizeof order);
 	if (order != QW_CKPT_ORDER)
 		return QW_ERROR(QW_EMISMATCH); /* written on another machine */
-	v->fingerprint = ckpt_get64(b + 16);
-	v->p = ckpt_get32(b + 24);
-	v->saved_ns = (int64_t)ckpt_get64(b + 32);
+	v->fingerprint = qw_le_get64(b + 16);
+	v->p = qw_le_get32(b + 24);
+	v->saved_ns = (int64_t)qw_le_get64(b + 32);
 	v->group = (const char *)b + QW_CKPT_HEADER;
 	v->group_len = name_len;
 	v->state = b + QW_CKPT_HEADER + name_len;
@@ -196,20 +170,6 @@ int qw_ckpt_decode(const void *buf, size_t len, const struct qw_ckpt_id *want,
 }
 
 /* ---- files -------------------------------------------------------------- */
-
-static void ckpt_msg(char *err, size_t errlen, const char *fmt, ...)
-	__attribute__((format(printf, 3, 4)));
-
-static void ckpt_msg(char *err, size_t errlen, const char *fmt, ...)
-{
-	va_list ap;
-
-	if (err == NULL || errlen == 0)
-		return;
-	va_start(ap, fmt);
-	vsnprintf(err, errlen, fmt, ap);
-	va_end(ap);
-}
 
 int qw_ckpt_path(char *out, size_t cap, const char *dir, const char *group)
 {
@@ -277,13 +237,13 @@ int qw_ckpt_write_file(const char *path, const void *buf, size_t len,
 
 	if (snprintf(tmp, sizeof tmp, "%s%s", path, QW_CKPT_TMP_SUFFIX) >=
 	    (int)sizeof tmp) {
-		ckpt_msg(err, errlen, "%s: path too long", path);
+		qw_errbuf(err, errlen, "%s: path too long", path);
 		return QW_ERROR(QW_EIO);
 	}
 	fd = open(tmp, O_WRONLY | O_CREAT | O_TRUNC | O_NOFOLLOW | O_CLOEXEC,
 		  0600);
 	if (fd < 0) {
-		ckpt_msg(err, errlen, "%s: open: %s", tmp, strerror(errno));
+		qw_errbuf(err, errlen, "%s: open: %s", tmp, strerror(errno));
 		return QW_ERROR(QW_EIO);
 	}
 	rc = ckpt_write_all(fd, buf, len);
@@ -303,12 +263,12 @@ int qw_ckpt_write_file(const char *path, const void *buf, size_t len,
 	if (rc != 0) {
 		if (strcmp(step, "open") == 0)
 			step = "write";
-		ckpt_msg(err, errlen, "%s: %s: %s", tmp, step, strerror(e));
+		qw_errbuf(err, errlen, "%s: %s: %s", tmp, step, strerror(e));
 		unlink(tmp);
 		return rc;
 	}
 	if (ckpt_sync_dir(path) != 0) {
-		ckpt_msg(err, errlen, "%s: fsync of its directory: %s", path,
+		qw_errbuf(err, errlen, "%s: fsync of its directory: %s", path,
 			 strerror(errno));
 		return QW_ERROR(QW_EIO);
 	}
@@ -332,7 +292,7 @@ int qw_ckpt_save(const char *dir, const struct qw_ckpt_id *id,
 	int rc;
 
 	if ((rc = qw_ckpt_path(path, sizeof path, dir, id->group)) != 0) {
-		ckpt_msg(err, errlen, "group %s: no usable checkpoint path "
+		qw_errbuf(err, errlen, "group %s: no usable checkpoint path "
 			 "in %s", id->group != NULL ? id->group : "?",
 			 dir != NULL ? dir : "?");
 		return rc;
@@ -341,7 +301,7 @@ int qw_ckpt_save(const char *dir, const struct qw_ckpt_id *id,
 	total = qw_ckpt_encoded_len(n, slen);
 	buf = malloc(total);
 	if (buf == NULL) {
-		ckpt_msg(err, errlen, "%s: no memory for %zu bytes", path,
+		qw_errbuf(err, errlen, "%s: no memory for %zu bytes", path,
 			 total);
 		return QW_ERROR(QW_ENOMEM);
 	}
@@ -352,7 +312,7 @@ int qw_ckpt_save(const char *dir, const struct qw_ckpt_id *id,
 	if (rc == 0)
 		rc = qw_ckpt_write_file(path, buf, len, err, errlen);
 	else
-		ckpt_msg(err, errlen, "%s: %s", path, qw_strerror(rc));
+		qw_errbuf(err, errlen, "%s: %s", path, qw_strerror(rc));
 	free(buf);
 	return rc;
 }
@@ -472,18 +432,18 @@ int qw_ckpt_restore(const char *dir, const struct qw_ckpt_id *id,
 	int rc, e;
 
 	if ((rc = qw_ckpt_path(path, sizeof path, dir, id->group)) != 0) {
-		ckpt_msg(err, errlen, "group %s: no usable checkpoint path "
+		qw_errbuf(err, errlen, "group %s: no usable checkpoint path "
 			 "in %s", id->group != NULL ? id->group : "?",
 			 dir != NULL ? dir : "?");
 		return rc;
 	}
 	rc = ckpt_read_file(path, &buf, &len);
 	if (rc == QW_ENODATA) {
-		ckpt_msg(err, errlen, "%s: no checkpoint", path);
+		qw_errbuf(err, errlen, "%s: no checkpoint", path);
 		return rc;
 	}
 	if (rc == QW_EIO || rc == QW_ENOMEM) {
-		ckpt_msg(err, errlen, "%s: cannot read: %s", path,
+		qw_errbuf(err, errlen, "%s: cannot read: %s", path,
 			 rc == QW_EIO ? strerror(errno) : qw_strerror(rc));
 		return rc;
 	}
@@ -491,15 +451,15 @@ int qw_ckpt_restore(const char *dir, const struct qw_ckpt_id *id,
 		rc = ckpt_apply(buf, len, id, d, saved_ns);
 	free(buf);
 	if (rc == 0) {
-		ckpt_msg(err, errlen, "%s: restored", path);
+		qw_errbuf(err, errlen, "%s: restored", path);
 		return 0;
 	}
 	if (qw_ckpt_reject(path, aside, sizeof aside) == 0) {
-		ckpt_msg(err, errlen, "%s refused: %s; kept as %s", path,
+		qw_errbuf(err, errlen, "%s refused: %s; kept as %s", path,
 			 ckpt_why(rc), aside);
 	} else {
 		e = errno;
-		ckpt_msg(err, errlen, "%s refused: %s; could not set it "
+		qw_errbuf(err, errlen, "%s refused: %s; could not set it "
 			 "aside: %s", path, ckpt_why(rc), strerror(e));
 	}
 	return rc;

@@ -88,3 +88,14 @@ void qw_log_limited(struct qw_log_limit *lim, int level, const char *fmt,
 	log_v(level, 0, fmt, ap);
 	va_end(ap);
 }
+
+void qw_errbuf(char *err, size_t errlen, const char *fmt, ...)
+{
+	va_list ap;
+
+	if (err == NULL || errlen == 0)
+		return;
+	va_start(ap, fmt);
+	vsnprintf(err, errlen, fmt, ap);
+	va_end(ap);
+}

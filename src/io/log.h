@@ -3,6 +3,7 @@
 #ifndef QW_LOG_H
 #define QW_LOG_H
 
+#include <stddef.h>
 #include <stdint.h>
 
 enum qw_log_level {
@@ -30,6 +31,12 @@ struct qw_log_limit {
 };
 void qw_log_limited(struct qw_log_limit *lim, int level, const char *fmt,
 		    ...) __attribute__((format(printf, 3, 4)));
+
+/* Formats an error message into the caller's buffer err[errlen] (nothing
+ * when err is NULL or errlen 0): the io modules report "FILE: reason" to
+ * their callers this way and leave logging to the commands. */
+void qw_errbuf(char *err, size_t errlen, const char *fmt, ...)
+	__attribute__((format(printf, 3, 4)));
 
 /* Monotonic seconds (CLOCK_MONOTONIC), for schedules and rate limits. */
 double qw_log_monotonic(void);

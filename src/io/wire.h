@@ -62,6 +62,14 @@ size_t qw_wire_encode_text(char *buf, size_t cap, size_t p, double t,
 			   const double *x);
 size_t qw_wire_encode_json(char *buf, size_t cap, size_t p, double t,
 			   const double *x);
+/* Doubles of a decode buffer for any binary frame of up to max_frame bytes
+ * of p channels: the times and values of as many readings as fit (>= 1). */
+size_t qw_wire_buffer_len(size_t max_frame, size_t p);
+/* Empties b and points it at buf (len doubles) for readings of p
+ * channels: cap = len / (1 + p) readings, times first, then values. */
+void qw_wire_batch_init(struct qw_wire_batch *b, size_t p, double *buf,
+			size_t len);
+
 /* Bytes a binary frame of n readings of p channels needs, 0 on overflow. */
 size_t qw_wire_binary_len(size_t p, size_t n);
 

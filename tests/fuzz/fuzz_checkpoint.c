@@ -15,7 +15,7 @@
  * without a sanitizer report, and whose state survives get/set/get
  * unchanged.  Seeds: tests/fuzz/corpus/checkpoint/.  Run through
  * tools/fuzz, built from the loader and the core only:
- * fuzz-sources: src/io/checkpoint.c src/core/alarm.c src/core/detector.c src/core/error.c src/core/ewcov.c src/core/explain.c src/core/limit.c
+ * fuzz-sources: src/io/checkpoint.c src/io/log.c src/core/alarm.c src/core/detector.c src/core/error.c src/core/ewcov.c src/core/explain.c src/core/limit.c
  */
 #include <math.h>
 #include <stdint.h>

@@ -2,7 +2,10 @@
  * (tests/ref_core.py, run by tests/t_ref_scipy.sh and t_ref_numpy.sh).
  *   helper_core limits            grid of alpha, chi-square, corrected
  *                                 limits and p-values
- *   helper_core scores P N H SEED  a generated stream and its scores
+ *   helper_core scores P N H SEED [time]
+ *                                 a generated stream and its scores; with
+ *                                 "time", H is in seconds and the readings
+ *                                 come at irregular times
  * It computes; the Python side holds the expectations. */
 #include <math.h>
 #include <stdio.h>
@@ -55,16 +58,24 @@ static int limits(void)
 	return 0;
 }
 
+/* Mean and long-gap time steps of the irregular stream, seconds. */
+#define SCORES_DT_MEAN 0.1
+#define SCORES_GAP 30.0
+#define SCORES_GAP_PROB 0.002
+
 /* A correlated stream with some missing channels and outliers; learn =
- * all, so the reference needs no limit to know what was learned. */
-static int scores(size_t p, size_t n, double h, unsigned long seed)
+ * all, so the reference needs no limit to know what was learned.  With
+ * time_based, steps are exponential (mean SCORES_DT_MEAN) with rare long
+ * gaps and repeated times, and the half-life is in seconds. */
+static int scores(size_t p, size_t n, double h, unsigned long seed,
+		  int time_based)
 {
 	struct qw_params par;
 	struct qw_result res;
 	qw_detector *d;
 	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
 	double *A = malloc(p * p * 8), *z = malloc(p * 8), *x = malloc(p * 8);
-	double *mean = malloc(p * 8), *floor = malloc(p * 8);
+	double *mean = malloc(p * 8), *floor = malloc(p * 8), t = 0;
 	size_t i, k;
 
 	gsl_rng_set(rng, seed);
@@ -77,10 +88,12 @@ static int scores(size_t p, size_t n, double h, unsigned long seed)
 	par.half_life = h;
 	par.floor = floor;
 	par.learn = QW_LEARN_ALL;
+	par.time_based = time_based;
+	par.rate = 1.0 / SCORES_DT_MEAN;
 	d = qw_detector_alloc(&par);
 	if (d == NULL)
 		return 1;
-	printf("# %zu %zu %.17g", p, n, h);
+	printf("# %zu %zu %.17g %d", p, n, h, time_based);
 	for (i = 0; i < p; i++)
 		printf(" %.17g", floor[i]);
 	printf("\n");
@@ -90,7 +103,17 @@ static int scores(size_t p, size_t n, double h, unsigned long seed)
 			x[gsl_rng_uniform_int(rng, p)] = NAN;
 		if (gsl_rng_uniform(rng) < 0.005)
 			x[0] += 25.0; /* outliers: large q, learned anyway */
-		qw_detector_add(d, (double)k, x, &res);
+		if (time_based) {
+			double u = gsl_rng_uniform(rng);
+
+			t += u < SCORES_GAP_PROB ? SCORES_GAP
+			     : u < 2 * SCORES_GAP_PROB ? 0.0 /* same time */
+			     : gsl_ran_exponential(rng, SCORES_DT_MEAN);
+		} else {
+			t = (double)k;
+		}
+		qw_detector_add(d, t, x, &res);
+		printf("%.17g,", t);
 		for (i = 0; i < p; i++)
 			printf("%.17g,", x[i]);
 		printf("%.17g,%u,%d\n", res.q, res.dof, res.scored);
@@ -106,10 +129,12 @@ int main(int argc, char **argv)
 	gsl_set_error_handler_off();
 	if (argc == 2 && strcmp(argv[1], "limits") == 0)
 		return limits();
-	if (argc == 6 && strcmp(argv[1], "scores") == 0)
+	if ((argc == 6 || argc == 7) && strcmp(argv[1], "scores") == 0)
 		return scores(strtoul(argv[2], NULL, 10),
 			      strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
-			      strtoul(argv[5], NULL, 10));
-	fprintf(stderr, "usage: helper_core limits | scores P N H SEED\n");
+			      strtoul(argv[5], NULL, 10),
+			      argc == 7 && strcmp(argv[6], "time") == 0);
+	fprintf(stderr, "usage: helper_core limits | scores P N H SEED "
+		"[time]\n");
 	return 2;
 }

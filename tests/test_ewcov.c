@@ -51,7 +51,7 @@ static void ref_first(struct ref *m, const double *x, const double *floor)
 static void ref_learn(struct ref *m, const double *x, double w)
 {
 	size_t i, j, p = m->p;
-	double r[256];
+	double r[256]; /* p <= 256 here */
 
 	for (i = 0; i < p; i++)
 		r[i] = x[i] - m->mu[i];
@@ -166,6 +166,9 @@ static void factor_p1(void **s) { (void)s; run_factor_vs_explicit(1, 100000, 200
 static void factor_p2(void **s) { (void)s; run_factor_vs_explicit(2, 100000, 200); }
 static void factor_p8(void **s) { (void)s; run_factor_vs_explicit(8, 100000, 2000); }
 static void factor_p64(void **s) { (void)s; run_factor_vs_explicit(64, 100000, 2000); }
+/* Issue 2: any p up to at least 256; fewer readings keep the explicit
+ * reference (p^2 per reading) to a second or two. */
+static void factor_p256(void **s) { (void)s; run_factor_vs_explicit(256, 20000, 2000); }
 
 int main(void)
 {
@@ -174,6 +177,7 @@ int main(void)
 		cmocka_unit_test(factor_p2),
 		cmocka_unit_test(factor_p8),
 		cmocka_unit_test(factor_p64),
+		cmocka_unit_test(factor_p256),
 	};
 
 	gsl_set_error_handler_off();

@@ -4,8 +4,8 @@
  * half-life in seconds); score it before learning (ewcov.c: one fused
  * sweep for a complete reading, the marginal model for a partial one);
  * compare q with the limit for its degrees of freedom and the model's
- * current effective size (limit.c, cached per dof, refreshed when the
- * effective size moves by QW_DET_NU_RTOL); feed the alarm state (alarm.c);
+ * current effective size (limit.c, cached per dof on a grid of nu, see
+ * QW_DET_NU_RTOL); feed the alarm state (alarm.c);
  * explain readings over the limit (explain.c); then learn or not:
  *  - during warm-up everything complete is learned;
  *  - after it, a reading over the limit is skipped, clipped to the limit's

@@ -6,8 +6,12 @@
 #include <math.h>
 #include <stddef.h>
 
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_linalg.h>
 #include <gsl/gsl_rng.h>
 #include <gsl/gsl_randist.h>
+
+#include "internal.h"
 
 /* Relative difference |a-b| / max(|a|, |b|, floor); NaN == NaN and equal
  * infinities count as equal (0); a NaN against a number is +Inf. */
@@ -52,6 +56,58 @@ static inline void qwt_draw(gsl_rng *rng, size_t p, const double *A,
 			s += A[i * p + j] * z[j];
 		x[i] = s;
 	}
+}
+
+/* The brute-force reference of the scoring tests: q = r_o' Sigma_oo^-1
+ * r_o over the channels with keep[i] != 0 (keep NULL: all), Sigma (p x p,
+ * row-major, full) factored and solved by GSL.  0 when none is kept. */
+static inline double qwt_quad_form(const double *sig, size_t p,
+				   const double *r, const int *keep)
+{
+	size_t o[512], m = 0, i, j;
+	gsl_matrix *a;
+	gsl_vector *rv, *y;
+	double q = 0.0;
+
+	for (i = 0; i < p && m < sizeof o / sizeof o[0]; i++)
+		if (keep == NULL || keep[i])
+			o[m++] = i;
+	if (m == 0)
+		return 0.0;
+	a = gsl_matrix_alloc(m, m);
+	rv = gsl_vector_alloc(m);
+	y = gsl_vector_alloc(m);
+	for (i = 0; i < m; i++) {
+		gsl_vector_set(rv, i, r[o[i]]);
+		for (j = 0; j < m; j++)
+			gsl_matrix_set(a, i, j, sig[o[i] * p + o[j]]);
+	}
+	if (gsl_linalg_cholesky_decomp1(a) == 0 &&
+	    gsl_linalg_cholesky_solve(a, rv, y) == 0)
+		gsl_blas_ddot(rv, y, &q);
+	else
+		q = NAN; /* fails any comparison */
+	gsl_matrix_free(a);
+	gsl_vector_free(rv);
+	gsl_vector_free(y);
+	return q;
+}
+
+/* Sigma = L L' in full (p x p, row-major) from a packed factor. */
+static inline void qwt_sigma_from_factor(const double *L, size_t p,
+					 double *sig)
+{
+	size_t i, j, k;
+
+	for (i = 0; i < p; i++)
+		for (j = 0; j < p; j++) {
+			double s = 0.0;
+
+			for (k = 0; k <= (i < j ? i : j); k++)
+				s += L[qw_packed_col(p, k) + i - k] *
+				     L[qw_packed_col(p, k) + j - k];
+			sig[i * p + j] = s;
+		}
 }
 
 #endif

@@ -191,44 +191,24 @@ static qw_detector *trained(struct sim *s, struct qw_params *par, size_t n)
 }
 
 /* Brute force: r_o' (Sigma_oo)^-1 r_o for the channels of x that are not
- * NaN, Sigma = L L' of d's model formed in full and solved by GSL; *m gets
- * the number observed. */
+ * NaN, Sigma = L L' of d's model formed in full (qwtest.h); *m gets the
+ * number observed. */
 static double brute_marginal_q(const qw_detector *d, size_t p,
 			       const double *x, size_t *m)
 {
-	const double *L = qw_ewcov_factor(qw_detector_model(d));
 	const double *mu = qw_ewcov_mean(qw_detector_model(d));
-	size_t o[8], i, j, k, n = 0;
-	gsl_matrix *a;
-	gsl_vector *r, *y;
-	double q = 0;
+	double sig[64], r[8];
+	int keep[8];
+	size_t i, n = 0;
 
-	for (i = 0; i < p; i++)
-		if (!isnan(x[i]))
-			o[n++] = i;
-	a = gsl_matrix_alloc(n, n);
-	r = gsl_vector_alloc(n);
-	y = gsl_vector_alloc(n);
-	for (i = 0; i < n; i++) {
-		gsl_vector_set(r, i, x[o[i]] - mu[o[i]]);
-		for (j = 0; j < n; j++) {
-			double sum = 0;
-
-			for (k = 0; k <= (o[i] < o[j] ? o[i] : o[j]); k++)
-				sum += L[qw_packed_col(p, k) + o[i] - k] *
-				       L[qw_packed_col(p, k) + o[j] - k];
-			gsl_matrix_set(a, i, j, sum);
-		}
+	qwt_sigma_from_factor(qw_ewcov_factor(qw_detector_model(d)), p, sig);
+	for (i = 0; i < p; i++) {
+		keep[i] = !isnan(x[i]);
+		r[i] = keep[i] ? x[i] - mu[i] : 0.0;
+		n += (size_t)keep[i];
 	}
-	gsl_linalg_cholesky_decomp1(a);
-	gsl_linalg_cholesky_solve(a, r, y);
-	for (i = 0; i < n; i++)
-		q += gsl_vector_get(r, i) * gsl_vector_get(y, i);
-	gsl_matrix_free(a);
-	gsl_vector_free(r);
-	gsl_vector_free(y);
 	*m = n;
-	return q;
+	return qwt_quad_form(sig, p, r, keep);
 }
 
 /* Issue 2, test 7: q on the observed subset equals the brute-force

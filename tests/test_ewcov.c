@@ -75,21 +75,12 @@ static void ref_learn(struct ref *m, const double *x, double w)
 /* q = r' Sigma^-1 r from the explicit matrix, by GSL. */
 static double ref_score(const struct ref *m, const double *x)
 {
-	size_t i, p = m->p;
-	gsl_matrix *a = gsl_matrix_alloc(p, p);
-	gsl_vector *r = gsl_vector_alloc(p), *s = gsl_vector_alloc(p);
-	double q;
+	double r[256];
+	size_t i;
 
-	memcpy(a->data, m->sig, p * p * sizeof(double));
-	for (i = 0; i < p; i++)
-		gsl_vector_set(r, i, x[i] - m->mu[i]);
-	assert_int_equal(gsl_linalg_cholesky_decomp1(a), 0);
-	gsl_linalg_cholesky_solve(a, r, s);
-	gsl_blas_ddot(r, s, &q);
-	gsl_matrix_free(a);
-	gsl_vector_free(r);
-	gsl_vector_free(s);
-	return q;
+	for (i = 0; i < m->p; i++)
+		r[i] = x[i] - m->mu[i];
+	return qwt_quad_form(m->sig, m->p, r, NULL);
 }
 
 /* Relative Frobenius distance between the packed factor and chol(sig). */

@@ -19,54 +19,17 @@
 
 #define TOL_EXACT 1e-9 /* issue 2, test 6: drop vs brute force */
 
-/* q = r_o' Sigma_oo^-1 r_o by GSL, the channels with keep[i] != 0. */
-static double brute_q(const double *sig, size_t p, const double *r,
-		      const int *keep)
-{
-	size_t o[64], m = 0, i, j;
-	gsl_matrix *a;
-	gsl_vector *rv, *y;
-	double q;
-
-	for (i = 0; i < p; i++)
-		if (keep[i])
-			o[m++] = i;
-	a = gsl_matrix_alloc(m, m);
-	rv = gsl_vector_alloc(m);
-	y = gsl_vector_alloc(m);
-	for (i = 0; i < m; i++) {
-		gsl_vector_set(rv, i, r[o[i]]);
-		for (j = 0; j < m; j++)
-			gsl_matrix_set(a, i, j, sig[o[i] * p + o[j]]);
-	}
-	assert_int_equal(gsl_linalg_cholesky_decomp1(a), 0);
-	gsl_linalg_cholesky_solve(a, rv, y);
-	gsl_blas_ddot(rv, y, &q);
-	gsl_matrix_free(a);
-	gsl_vector_free(rv);
-	gsl_vector_free(y);
-	return q;
-}
-
 /* A random packed factor L with a positive diagonal, and Sigma = L L'. */
 static void random_model(gsl_rng *rng, size_t p, double *L, double *sig)
 {
-	size_t i, j, k;
+	size_t i, j;
 
 	for (j = 0; j < p; j++)
 		for (i = j; i < p; i++)
 			L[qw_packed_col(p, j) + i - j] =
 				i == j ? 1.5 + gsl_rng_uniform(rng)
 				       : gsl_ran_gaussian(rng, 0.8);
-	for (i = 0; i < p; i++)
-		for (j = 0; j < p; j++) {
-			double s = 0;
-
-			for (k = 0; k <= (i < j ? i : j); k++)
-				s += L[qw_packed_col(p, k) + i - k] *
-				     L[qw_packed_col(p, k) + j - k];
-			sig[i * p + j] = s;
-		}
+	qwt_sigma_from_factor(L, p, sig);
 }
 
 /* drop_i = q - q without channel i, for every i, with and without a mask
@@ -99,12 +62,12 @@ static void drop_vs_brute_force(void **st)
 			}
 			n = qw_explain(L, p, r, rep == 0 ? NULL : mask, work,
 				       out);
-			q = brute_q(sig, p, r, keep);
+			q = qwt_quad_form(sig, p, r, keep);
 			for (j = 0; j < n; j++) {
 				i = out[j].channel;
 				assert_true(keep[i]);
 				keep[i] = 0;
-				qi = n > 1 ? brute_q(sig, p, r, keep) : 0.0;
+				qi = n > 1 ? qwt_quad_form(sig, p, r, keep) : 0.0;
 				keep[i] = 1;
 				assert_true(qwt_reldiff(out[j].drop, q - qi,
 							q * 1e-12) <= TOL_EXACT);

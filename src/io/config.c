@@ -43,16 +43,21 @@
 
 /* ---- messages and lists ------------------------------------------------ */
 
-/* Records the first error; sec "" leaves out the section. */
-static int cfg_record(struct cfg_parse *ps, int code, int line,
-		      const char *sec, const char *key, const char *msg)
+/* Records the first error: "FILE:LINE: [sec] key: message" (sec ""
+ * leaves out the section), the message from fmt and ap.  Returns code. */
+static int cfg_vrecord(struct cfg_parse *ps, int code, int line,
+		       const char *sec, const char *key, const char *fmt,
+		       va_list ap)
 {
+	char msg[QW_CONFIG_ERR_MAX];
+
 	if (ps->rc != 0)
 		return code;
 	ps->rc = code;
 	ps->err_line = line;
 	if (ps->err == NULL || ps->errlen == 0)
 		return code;
+	vsnprintf(msg, sizeof msg, fmt, ap);
 	if (sec[0] != '\0')
 		snprintf(ps->err, ps->errlen, "%s:%d: [%s]%s%s: %s", ps->file,
 			 line, sec, key ? " " : "", key ? key : "", msg);
@@ -65,13 +70,12 @@ static int cfg_record(struct cfg_parse *ps, int code, int line,
 int cfg_fail(struct cfg_parse *ps, int code, int line, const char *key,
 	     const char *fmt, ...)
 {
-	char msg[QW_CONFIG_ERR_MAX];
 	va_list ap;
 
 	va_start(ap, fmt);
-	vsnprintf(msg, sizeof msg, fmt, ap);
+	code = cfg_vrecord(ps, code, line, ps->secname, key, fmt, ap);
 	va_end(ap);
-	return cfg_record(ps, code, line, ps->secname, key, msg);
+	return code;
 }
 
 /* An error about the file itself, not a section: "FILE:LINE: message". */
@@ -81,25 +85,24 @@ static int cfg_fail_file(struct cfg_parse *ps, int code, int line,
 static int cfg_fail_file(struct cfg_parse *ps, int code, int line,
 			 const char *fmt, ...)
 {
-	char msg[QW_CONFIG_ERR_MAX];
 	va_list ap;
 
 	va_start(ap, fmt);
-	vsnprintf(msg, sizeof msg, fmt, ap);
+	code = cfg_vrecord(ps, code, line, "", NULL, fmt, ap);
 	va_end(ap);
-	return cfg_record(ps, code, line, "", NULL, msg);
+	return code;
 }
 
 int cfg_bad(struct cfg_parse *ps, const char *fmt, ...)
 {
-	char msg[QW_CONFIG_ERR_MAX];
 	va_list ap;
+	int code;
 
 	va_start(ap, fmt);
-	vsnprintf(msg, sizeof msg, fmt, ap);
+	code = cfg_vrecord(ps, QW_ERROR(QW_EFORMAT), ps->key_at, ps->secname,
+			   ps->key, fmt, ap);
 	va_end(ap);
-	return cfg_fail(ps, QW_ERROR(QW_EFORMAT), ps->key_at, ps->key, "%s",
-			msg);
+	return code;
 }
 
 static int cfg_blank(char c)

@@ -73,6 +73,8 @@ struct qw_ewcov {
 	double *floor;       /* p: configured floors, 0 = auto (std dev) */
 	double *floorsq;     /* p: F_ii, resolved at the first reading */
 	double *r;           /* p: x - mu of the last scored reading */
+	double *y;           /* p: L^-1 r of the last complete score (valid
+				until the next learn) */
 	double *u;           /* p: forward-substitution residual (work) */
 	double *sub;         /* p*p: marginal factor for partial readings */
 	size_t *idx;         /* p: observed channels of a partial reading */
@@ -96,6 +98,7 @@ void qw_ewcov_free(qw_ewcov *ew)
 	free(ew->floor);
 	free(ew->floorsq);
 	free(ew->r);
+	free(ew->y);
 	free(ew->u);
 	free(ew->sub);
 	free(ew->idx);
@@ -124,12 +127,13 @@ qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor)
 	ew->floor = malloc(p * sizeof *ew->floor);
 	ew->floorsq = malloc(p * sizeof *ew->floorsq);
 	ew->r = malloc(p * sizeof *ew->r);
+	ew->y = malloc(p * sizeof *ew->y);
 	ew->u = malloc(p * sizeof *ew->u);
 	ew->sub = malloc(p * p * sizeof *ew->sub);
 	ew->idx = malloc(p * sizeof *ew->idx);
 	if (!ew->mu || !ew->L || !ew->Ln || !ew->iL || !ew->iLn ||
 	    !ew->floor || !ew->floorsq ||
-	    !ew->r || !ew->u || !ew->sub || !ew->idx)
+	    !ew->r || !ew->y || !ew->u || !ew->sub || !ew->idx)
 		goto fail;
 	memcpy(ew->floor, floor, p * sizeof *floor);
 	qw_ewcov_reset(ew);
@@ -249,7 +253,8 @@ static inline void sweep_pivot(struct sweep_state *st, double uj,
 
 /* The fused sweep: from u = r (overwritten), the factor src with inverse
  * pivots isrc, and weight a (the update is src src' + a r r', then scaled
- * by c), writes dst and idst and returns q = |src^-1 r|^2.  j0: the first
+ * by c), writes dst and idst, the solved vector ys = src^-1 r (columns
+ * from j0 on) and returns q = |src^-1 r|^2.  j0: the first
  * column where r is non-zero; the columns before it are copied.  Columns go
  * in pairs: u_i stays in a register across both, which saves a load and a
  * store per element; each element sees the same operations in the same
@@ -258,7 +263,7 @@ __attribute__((target_clones("arch=x86-64-v4", "arch=x86-64-v3", "default")))
 static double ewcov_sweep(const double *restrict src,
 			  const double *restrict isrc, double *restrict dst,
 			  double *restrict idst, size_t p, double *restrict u,
-			  double a, double c, size_t j0)
+			  double *restrict ys, double a, double c, size_t j0)
 {
 	struct sweep_state st = {1.0 / a, sqrt(a), 0.0, c};
 	size_t j = j0, i, off = qw_packed_col(p, j0);
@@ -279,6 +284,8 @@ static double ewcov_sweep(const double *restrict src,
 		d[1] = A0 * s[1] + B0 * u1;
 		sweep_pivot(&st, u1, t[0], isrc[j + 1], &e[0], &idst[j + 1],
 			    &y1, &A1, &B1);
+		ys[j] = y0;
+		ys[j + 1] = y1;
 		for (i = j + 2; i < p; i++) {
 			double ui = u[i] - y0 * s[i - j];
 
@@ -294,6 +301,7 @@ static double ewcov_sweep(const double *restrict src,
 
 		sweep_pivot(&st, u[j], src[off], isrc[j], &dst[off], &idst[j],
 			    &y0, &A0, &B0);
+		ys[j] = y0;
 	}
 	return st.q;
 }
@@ -321,7 +329,7 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 		ew->r[i] = x[i] - ew->mu[i];
 		ew->u[i] = ew->r[i];
 	}
-	qq = ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, w,
+	qq = ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
 			 sqrt(1.0 - w), 0);
 	/* q finite implies every y_j, g and so every new element finite. */
 	if (!isfinite(qq))
@@ -345,7 +353,7 @@ static void ewcov_topup(qw_ewcov *ew)
 			memset(ew->u, 0, p * sizeof *ew->u);
 			ew->u[i] = sqrt(add * ew->floorsq[i]);
 			ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u,
-				    1.0, 1.0, i);
+				    ew->y, 1.0, 1.0, i);
 			ewcov_swap(ew);
 		}
 	}
@@ -367,8 +375,8 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 			ew->r[i] *= gain;
 			ew->u[i] = ew->r[i];
 		}
-		ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, w,
-			    sqrt(1.0 - w), 0);
+		ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y,
+			    w, sqrt(1.0 - w), 0);
 	}
 	ewcov_swap(ew);
 	for (i = 0; i < p; i++)
@@ -424,6 +432,11 @@ int qw_ewcov_score_subset(qw_ewcov *ew, const double *x, double *q,
 const double *qw_ewcov_residual(const qw_ewcov *ew)
 {
 	return ew->r;
+}
+
+const double *qw_ewcov_solved(const qw_ewcov *ew)
+{
+	return ew->y;
 }
 
 double qw_ewcov_nu(const qw_ewcov *ew)

@@ -32,5 +32,8 @@ void qw_dense_forward(const double *l, size_t m, double *b);
 
 /* r = x - mu of the last reading scored by ew (0 for missing channels). */
 const double *qw_ewcov_residual(const qw_ewcov *ew);
+/* y = L^-1 r of the last complete reading scored by qw_ewcov_score (the
+ * standardised residual, q = y'y), valid until the next qw_ewcov_learn. */
+const double *qw_ewcov_solved(const qw_ewcov *ew);
 
 #endif

@@ -160,6 +160,21 @@ enum qw_learn {
 	QW_LEARN_ALL = 2   /* everything is learned (no contamination guard) */
 };
 
+/* Temporal whitening (dynamics.c): what is scored. */
+enum qw_dynamics {
+	QW_DYN_NONE = 0,  /* the reading itself against the EW mean */
+	QW_DYN_AR1 = 1,   /* per-channel AR(1) innovations */
+	QW_DYN_VAR1 = 2   /* first-order vector autoregression innovations:
+			     x_t given x_{t-1} under the EW joint model */
+};
+
+/* What the alarm rule watches (mewma.c). */
+enum qw_mode {
+	QW_MODE_PLAIN = 0, /* each reading's score */
+	QW_MODE_MEWMA = 1  /* an EWMA of the standardised residuals (Lowry,
+			      Woodall, Champ & Rigdon 1992) */
+};
+
 struct qw_params {
 	size_t p;               /* channels, 1..QW_MAX_P */
 	double half_life;       /* readings, or seconds when time_based */
@@ -176,9 +191,22 @@ struct qw_params {
 				   re-baseline; 0 = only on request */
 	int correct;            /* 1: finite-sample corrected limit (default);
 				   0: plain chi-square (for comparison) */
+	enum qw_dynamics dynamics; /* temporal whitening; default none */
+	double max_gap;         /* seconds: consecutive readings further apart
+				   do not form a lag pair; 0 = 3 / rate */
+	enum qw_mode mode;      /* plain (default) or mewma */
+	double smoothing;       /* mewma weight rho in (0, 1]; default 0.1 */
+	double fixed_limit;     /* > 0: use this limit (full dof) instead of
+				   the one from alarms_per_day; 0 = derive */
+	double limit_factor;    /* every derived limit times this (an
+				   empirical tail correction from a fit);
+				   default 1 */
 };
 
 #define QW_MAX_P 4096 /* channels per group; the factor is p^2/2 doubles */
+/* half_life = QW_HALF_LIFE_NONE: no forgetting, weights 1/n (an ordinary
+ * mean and covariance: what a fit from a recording estimates). */
+#define QW_HALF_LIFE_NONE INFINITY
 
 /* Defaults for everything but p (see detector.c for values and why). */
 void qw_params_default(struct qw_params *par, size_t p);
@@ -213,6 +241,9 @@ struct qw_counters {
 	uint64_t rej_empty;     /* rejected: every channel missing */
 	uint64_t numeric;       /* factor rebuilt after a numeric fault */
 	uint64_t rebaselines;   /* re-baselines, requested or automatic */
+	uint64_t unlagged;      /* whitening: readings with no usable previous
+				   reading (first, after a gap or a missing
+				   channel): scored without it, not learned */
 };
 
 typedef struct qw_detector qw_detector;
@@ -224,6 +255,22 @@ void qw_detector_free(qw_detector *d);
  * the model untouched; res is always filled. */
 int qw_detector_add(qw_detector *d, double t, const double *x,
 		    struct qw_result *res);
+/* The same with flags: QW_ADD_NOLEARN scores and raises as usual but never
+ * learns the reading (a fit's trimming passes, held-out scoring). */
+#define QW_ADD_NOLEARN 1u
+int qw_detector_add_flags(qw_detector *d, double t, const double *x,
+			  unsigned flags, struct qw_result *res);
+/* Frozen (on = 1): nothing is learned from now on; the model and the limit
+ * stay as they are (Phase II monitoring against a fixed reference).
+ * Re-baselining a frozen group unfreezes it. */
+void qw_detector_freeze(qw_detector *d, int on);
+int qw_detector_frozen(const qw_detector *d);
+/* Multiplies the learned covariance by s > 0 (a consistency factor for a
+ * trimmed fit).  QW_EINVAL for s not finite and positive. */
+int qw_detector_scale_model(qw_detector *d, double s);
+/* Readings learned (the model's count) and the dimension of the model
+ * vector (p, or 2p with VAR(1) whitening). */
+uint64_t qw_detector_count(const qw_detector *d);
 /* Restart learning from nothing (operator command).  Returns 1 when the
  * group was in alarm (the alarm is cleared: publish a clear), else 0. */
 int qw_detector_rebaseline(qw_detector *d);
@@ -248,6 +295,16 @@ double qw_detector_limit(const qw_detector *d);
 size_t qw_detector_state_len(const qw_detector *d);
 void qw_detector_state_get(const qw_detector *d, void *buf);
 int qw_detector_state_set(qw_detector *d, const void *buf, size_t len);
+
+/* ---- mewma.c: the MEWMA statistic and its limit ------------------------ */
+
+/* Steady-state rate of upcrossings per reading of the MEWMA statistic
+ * T2 = |z|^2 (2-rho)/rho, z' = (1-rho) z + rho y, y ~ N(0, I_dof) iid:
+ * P(T2_{t-1} <= h < T2_t).  Deterministic quadrature (mewma.c). */
+double qw_mewma_uprate(double h, unsigned dof, double rho);
+/* The h with qw_mewma_uprate(h) = rate (per reading, in (0, 0.5)); NaN
+ * when no h in range gives it.  A few thousand CDF calls. */
+double qw_mewma_limit(double rate, unsigned dof, double rho);
 
 /* ---- explain.c --------------------------------------------------------- */
 

@@ -6,6 +6,10 @@
  *                                 a generated stream and its scores; with
  *                                 "time", H is in seconds and the readings
  *                                 come at irregular times
+ *   helper_core dyn P N H SEED none|ar1|var1
+ *                                 a VAR(1) stream with missing channels and
+ *                                 gaps in time, scored with that whitening
+ *                                 (tests/ref_dynamics.py)
  * It computes; the Python side holds the expectations. */
 #include <math.h>
 #include <stdio.h>
@@ -124,6 +128,66 @@ static int scores(size_t p, size_t n, double h, unsigned long seed,
 	return 0;
 }
 
+/* Readings of the whitening stream: 10 per second, with rare gaps longer
+ * than the lag pair's max_gap (1.5 nominal intervals). */
+#define DYN_RATE 10.0
+#define DYN_GAP_S 2.0
+#define DYN_GAP_PROB 0.003
+#define DYN_MISSING_PROB 0.02
+
+static int dyn(size_t p, size_t n, double h, unsigned long seed,
+	       const char *kind)
+{
+	struct qw_params par;
+	struct qw_result res;
+	qw_detector *d;
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double *A = calloc(p * p, 8), *x = malloc(p * 8), *mean = malloc(p * 8);
+	double *floor = malloc(p * 8), *st = calloc(p, 8), *z = malloc(p * 8);
+	double *nx = malloc(p * 8), t = 0;
+	struct qwt_var1 v = {p, 0.9, 0.05, A, mean, st, z, nx};
+	size_t i, k;
+
+	gsl_rng_set(rng, seed);
+	qwt_mixing(rng, p, A);
+	for (i = 0; i < p; i++) {
+		mean[i] = 50.0 * gsl_rng_uniform(rng) - 10.0;
+		floor[i] = 0.01 + 0.005 * (double)i;
+	}
+	qw_params_default(&par, p);
+	par.half_life = h;
+	par.floor = floor;
+	par.learn = QW_LEARN_ALL;
+	par.rate = DYN_RATE;
+	par.dynamics = strcmp(kind, "var1") == 0  ? QW_DYN_VAR1
+		       : strcmp(kind, "ar1") == 0 ? QW_DYN_AR1
+						  : QW_DYN_NONE;
+	d = qw_detector_alloc(&par);
+	if (d == NULL)
+		return 1;
+	printf("# %zu %zu %.17g %s %.17g", p, n, h, kind, 1.5 / DYN_RATE);
+	for (i = 0; i < p; i++)
+		printf(" %.17g", floor[i]);
+	printf("\n");
+	for (k = 0; k < n; k++) {
+		qwt_var1_step(rng, &v, x);
+		if (k > 10 && gsl_rng_uniform(rng) < DYN_MISSING_PROB)
+			x[gsl_rng_uniform_int(rng, p)] = NAN;
+		t += gsl_rng_uniform(rng) < DYN_GAP_PROB ? DYN_GAP_S
+							  : 1.0 / DYN_RATE;
+		qw_detector_add(d, t, x, &res);
+		printf("%.17g,", t);
+		for (i = 0; i < p; i++)
+			printf("%.17g,", x[i]);
+		printf("%.17g,%u,%d,%d\n", res.q, res.dof, res.scored,
+		       res.learned);
+	}
+	qw_detector_free(d);
+	gsl_rng_free(rng);
+	free(A), free(x), free(mean), free(floor), free(st), free(z), free(nx);
+	return 0;
+}
+
 int main(int argc, char **argv)
 {
 	gsl_set_error_handler_off();
@@ -134,7 +198,11 @@ int main(int argc, char **argv)
 			      strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
 			      strtoul(argv[5], NULL, 10),
 			      argc == 7 && strcmp(argv[6], "time") == 0);
+	if (argc == 7 && strcmp(argv[1], "dyn") == 0)
+		return dyn(strtoul(argv[2], NULL, 10),
+			   strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
+			   strtoul(argv[5], NULL, 10), argv[6]);
 	fprintf(stderr, "usage: helper_core limits | scores P N H SEED "
-		"[time]\n");
+		"[time] | dyn P N H SEED none|ar1|var1\n");
 	return 2;
 }

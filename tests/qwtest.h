@@ -93,6 +93,39 @@ static inline double qwt_quad_form(const double *sig, size_t p,
 	return q;
 }
 
+/* A strongly autocorrelated, cross-coupled VAR(1) process:
+ *   x_t - mean = Phi (x_{t-1} - mean) + A e_t,  e_t ~ N(0, I),
+ * Phi = phi on the diagonal, +couple above it and -couple below it
+ * (eigenvalues phi +- i 2 couple cos(k pi/(p+1)), so |eig| < 1 for
+ * phi = 0.9, couple = 0.05).  state: p doubles, start at 0. */
+struct qwt_var1 {
+	size_t p;
+	double phi, couple;
+	const double *A, *mean;
+	double *state, *z, *next;
+};
+
+static inline void qwt_var1_step(gsl_rng *rng, struct qwt_var1 *v,
+				 double *x)
+{
+	size_t i, p = v->p;
+
+	qwt_draw(rng, p, v->A, NULL, v->z, v->next);
+	for (i = 0; i < p; i++) {
+		double s = v->phi * v->state[i];
+
+		if (i + 1 < p)
+			s += v->couple * v->state[i + 1];
+		if (i > 0)
+			s -= v->couple * v->state[i - 1];
+		v->next[i] += s;
+	}
+	for (i = 0; i < p; i++) {
+		v->state[i] = v->next[i];
+		x[i] = v->state[i] + (v->mean != NULL ? v->mean[i] : 0.0);
+	}
+}
+
 /* Sigma = L L' in full (p x p, row-major) from a packed factor. */
 static inline void qwt_sigma_from_factor(const double *L, size_t p,
 					 double *sig)

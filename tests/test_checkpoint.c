@@ -344,9 +344,13 @@ static void test_each_refusal(void **state)
 	c[0] = 'X';
 	ck_refused(f, c, f->len, QW_EFORMAT);           /* magic */
 	memcpy(c, f->file, f->len);
-	c[8] = 2;
+	c[8] = (unsigned char)(QW_CKPT_VERSION + 1);
 	ck_recrc(c, f->len);
-	ck_refused(f, c, f->len, QW_EVERSION);          /* version 2 */
+	ck_refused(f, c, f->len, QW_EVERSION);          /* a later version */
+	memcpy(c, f->file, f->len);
+	c[8] = (unsigned char)(QW_CKPT_VERSION - 1);
+	ck_recrc(c, f->len);
+	ck_refused(f, c, f->len, QW_EVERSION);          /* the one before */
 	memcpy(c, f->file, f->len);
 	memcpy(&order, c + 12, 4);
 	order = ((order & 0xffu) << 24) | ((order >> 24) & 0xffu) |

@@ -26,6 +26,15 @@
  * (tracked like the EW weights).  Tiny at alpha 1e-6, but 3-7% of the
  * scale at the alpha of 1-3% that k-of-m rules need, and a raise rate goes
  * as alpha^k.
+ * Whitening (dynamics.c) changes what the model scores: the stacked
+ * [x_{t-1}; x_t] under var1 (scored on its innovation part, with the
+ * effective size reduced by the p conditioning channels: a regression on
+ * k regressors leaves nu - k degrees of freedom), per-channel AR(1)
+ * innovations under ar1.  MEWMA mode (mewma.c) charts an EWMA of the
+ * standardised residual y = L^-1 r that the sweep leaves behind (rescaled
+ * by the mean of the F form, scale nu/(nu-p-1) per channel, so estimated
+ * parameters do not inflate it), against a limit for the raise rate; the
+ * guard then uses each reading's own score against the plain limit.
  * Workload: the per-reading path is the ewcov sweep plus O(p); no
  * allocation after qw_detector_alloc. */
 #include <math.h>
@@ -35,8 +44,7 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
-#include "internal.h"
-#include "quadwatch.h"
+#include "detector_int.h"
 
 /* Limit cache: the F quantile is computed at nu rounded down to a
  * geometric grid of this relative step, so the limit is a pure function of
@@ -53,27 +61,6 @@
 #define QW_DEF_WARMUP_MIN 100   /* ... this many, so nu >> p at the start */
 #define QW_DEF_CLEAR_N 5        /* readings under the limit to clear */
 
-struct qw_detector {
-	struct qw_params par;      /* par.floor points at floor */
-	double *floor;             /* p configured floors (0 = auto) */
-	qw_ewcov *ew;
-	struct qw_alarm alarm;
-	double alpha;              /* per-reading exceedance probability */
-	double lam;                /* EW weight per reading (readings mode),
-				      or at the nominal rate (time mode) */
-	double *lim_f;             /* p+1: cached nu d/(nu-d+1) F^-1, by dof */
-	double *lim_nu;            /* p+1: grid nu each was computed at */
-	double *lim_hi;            /* p+1: the next grid point: the cached
-				      value holds for nu in [lim_nu, lim_hi) */
-	double last_t;             /* time of the last learned reading */
-	uint64_t alarm_run;        /* readings since the raise */
-	double kappa;              /* guard bias of Sigma (file top) */
-	double tshare;             /* share of the model learned guarded */
-	struct qw_counters cnt;
-	double *work;              /* explain workspace */
-	unsigned char *mask;       /* p: observed channels */
-	struct qw_contrib *contrib;/* p */
-};
 
 void qw_params_default(struct qw_params *par, size_t p)
 {
@@ -93,6 +80,12 @@ void qw_params_default(struct qw_params *par, size_t p)
 	par->learn = QW_LEARN_SKIP;
 	par->relearn_after = 0;
 	par->correct = 1;
+	par->dynamics = QW_DYN_NONE;
+	par->max_gap = 0.0;
+	par->mode = QW_MODE_PLAIN;
+	par->smoothing = QW_DEF_SMOOTHING;
+	par->fixed_limit = 0.0;
+	par->limit_factor = 1.0;
 }
 
 int qw_params_check(const struct qw_params *par)
@@ -102,9 +95,23 @@ int qw_params_check(const struct qw_params *par)
 
 	if (par->p < 1 || par->p > QW_MAX_P)
 		return QW_ERROR(QW_EINVAL);
-	if (!(par->half_life > 0) || !isfinite(par->half_life))
+	if ((par->dynamics == QW_DYN_VAR1 && 2 * par->p > QW_MAX_P) ||
+	    (unsigned)par->dynamics > QW_DYN_VAR1 ||
+	    (unsigned)par->mode > QW_MODE_MEWMA)
+		return QW_ERROR(QW_EINVAL);
+	/* Infinite: no forgetting (QW_HALF_LIFE_NONE). */
+	if (!(par->half_life > 0) || isnan(par->half_life))
 		return QW_ERROR(QW_EINVAL);
 	if (par->clear_n < 1 || (unsigned)par->learn > QW_LEARN_ALL)
+		return QW_ERROR(QW_EINVAL);
+	if (!(par->max_gap >= 0) || !(par->fixed_limit >= 0) ||
+	    !isfinite(par->fixed_limit) || !(par->limit_factor > 0) ||
+	    !isfinite(par->limit_factor))
+		return QW_ERROR(QW_EINVAL);
+	/* MEWMA smooths already; its limit is solved for 1-of-1 raises. */
+	if (par->mode == QW_MODE_MEWMA &&
+	    (!(par->smoothing > 0 && par->smoothing <= 1) ||
+	     par->persist_k != 1 || par->persist_m != 1))
 		return QW_ERROR(QW_EINVAL);
 	if (par->floor != NULL)
 		for (i = 0; i < par->p; i++)
@@ -119,18 +126,23 @@ void qw_detector_free(qw_detector *d)
 	if (d == NULL)
 		return;
 	qw_ewcov_free(d->ew);
+	qw_dyn_free(d->dyn);
 	free(d->floor);
+	free(d->vfloor);
 	free(d->lim_f);
 	free(d->lim_nu);
 	free(d->lim_hi);
+	free(d->z);
 	free(d->work);
+	free(d->vlag);
 	free(d->mask);
 	free(d->contrib);
 	free(d);
 }
 
 /* EW weight per step of one reading (half_life in readings) or of dt
- * seconds: lam = 1 - 2^(-steps/h), via expm1 for small steps. */
+ * seconds: lam = 1 - 2^(-steps/h), via expm1 for small steps; 0 (weights
+ * 1/n) without forgetting. */
 static double det_lam(double steps, double half_life)
 {
 	return -expm1(-M_LN2 * steps / half_life);
@@ -149,42 +161,68 @@ static double det_kappa(double alpha, size_t p, enum qw_learn learn)
 	return 1.0;
 }
 
+/* The parts sized by p and the model's dimension; 0 or QW_ENOMEM. */
+static int det_alloc_parts(qw_detector *d, const struct qw_params *par)
+{
+	size_t p = par->p, dim, i;
+	double gap = par->max_gap > 0 ? par->max_gap
+				      : QW_DEF_GAP_INTERVALS / par->rate;
+
+	d->floor = calloc(p, sizeof *d->floor);
+	d->dyn = d->floor ? qw_dyn_alloc(par->dynamics, p, gap, d->floor)
+			  : NULL;
+	if (d->dyn == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	dim = d->dim = d->dyn->dim;
+	d->vfloor = calloc(dim, sizeof *d->vfloor);
+	d->lim_f = calloc(p + 1, sizeof *d->lim_f);
+	d->lim_nu = calloc(p + 1, sizeof *d->lim_nu);
+	d->lim_hi = calloc(p + 1, sizeof *d->lim_hi);
+	d->z = calloc(p, sizeof *d->z);
+	d->work = malloc(qw_explain_work_len(dim) * sizeof *d->work);
+	d->vlag = malloc(dim * sizeof *d->vlag);
+	d->mask = malloc(dim);
+	d->contrib = malloc(dim * sizeof *d->contrib);
+	if (!d->vfloor || !d->lim_f || !d->lim_nu || !d->lim_hi || !d->z ||
+	    !d->work || !d->vlag || !d->mask || !d->contrib)
+		return QW_ERROR(QW_ENOMEM);
+	if (par->floor != NULL)
+		memcpy(d->floor, par->floor, p * sizeof *d->floor);
+	/* var1: both halves of [x_{t-1}; x_t] are the same channels. */
+	for (i = 0; i < dim; i++)
+		d->vfloor[i] = d->floor[i % p];
+	d->ew = qw_ewcov_alloc(dim, d->vfloor);
+	return d->ew != NULL ? 0 : QW_ERROR(QW_ENOMEM);
+}
+
 qw_detector *qw_detector_alloc(const struct qw_params *par)
 {
 	qw_detector *d;
-	size_t p;
 
 	gsl_set_error_handler_off(); /* GSL's default handler aborts */
 	if (par == NULL || qw_params_check(par) != 0)
 		return NULL;
-	p = par->p;
 	d = calloc(1, sizeof *d);
 	if (d == NULL)
 		goto fail;
 	d->par = *par;
-	d->floor = calloc(p, sizeof *d->floor);
-	d->lim_f = calloc(p + 1, sizeof *d->lim_f);
-	d->lim_nu = calloc(p + 1, sizeof *d->lim_nu);
-	d->lim_hi = calloc(p + 1, sizeof *d->lim_hi);
-	d->work = malloc(qw_explain_work_len(p) * sizeof *d->work);
-	d->mask = malloc(p);
-	d->contrib = malloc(p * sizeof *d->contrib);
-	if (!d->floor || !d->lim_f || !d->lim_nu || !d->lim_hi || !d->work ||
-	    !d->mask ||
-	    !d->contrib)
+	if (det_alloc_parts(d, par) != 0)
 		goto fail;
-	if (par->floor != NULL)
-		memcpy(d->floor, par->floor, p * sizeof *d->floor);
 	d->par.floor = d->floor;
-	d->ew = qw_ewcov_alloc(p, d->floor);
-	if (d->ew == NULL)
-		goto fail;
 	qw_limit_alpha(par->alarms_per_day, par->rate, par->persist_k,
 		       par->persist_m, &d->alpha);
 	d->lam = det_lam(par->time_based ? 1.0 / par->rate : 1.0,
 			 par->half_life);
 	qw_alarm_init(&d->alarm, par->persist_k, par->persist_m, par->clear_n);
-	d->kappa = det_kappa(d->alpha, p, par->learn);
+	d->kappa = det_kappa(d->alpha, par->p, par->learn);
+	if (par->mode == QW_MODE_MEWMA) {
+		d->mewma_h = qw_mewma_limit(par->alarms_per_day /
+						    (par->rate *
+						     QW_SECONDS_PER_DAY),
+					    (unsigned)par->p, par->smoothing);
+		if (!(d->mewma_h > 0))
+			goto fail;
+	}
 	return d;
 fail:
 	qw_detector_free(d);
@@ -196,26 +234,33 @@ int qw_detector_rebaseline(qw_detector *d)
 	int was = d->alarm.in_alarm;
 
 	qw_ewcov_reset(d->ew);
+	qw_dyn_reset(d->dyn);
 	qw_alarm_reset(&d->alarm);
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
 	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
+	memset(d->z, 0, d->par.p * sizeof *d->z);
 	d->alarm_run = 0;
 	d->tshare = 0.0;
+	d->frozen = 0;
 	d->cnt.rebaselines++;
 	return was;
 }
 
-/* The limit for dof channels at the model's current effective size. */
-static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
-			double *scale_out)
+/* The plain limit for dof channels at effective size nu (the model's,
+ * less its conditioning components). */
+static double det_limit(qw_detector *d, unsigned dof, double nu,
+			double *nu_out, double *scale_out)
 {
-	double nu = qw_ewcov_nu(d->ew), scale = qw_ewcov_scale(d->ew);
+	double scale = qw_det_scale(d), f = d->par.limit_factor;
 
+	if (d->par.fixed_limit > 0 && dof == d->par.p) {
+		*nu_out = INFINITY;
+		*scale_out = 1.0;
+		return d->par.fixed_limit;
+	}
 	if (!d->par.correct) {
 		nu = INFINITY;
 		scale = 1.0;
-	} else {
-		scale /= 1.0 - (1.0 - d->kappa) * d->tshare;
 	}
 	*scale_out = scale;
 	if (!(nu > dof - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale)) {
@@ -224,7 +269,7 @@ static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
 	}
 	if (nu >= d->lim_nu[dof] && nu < d->lim_hi[dof]) {
 		*nu_out = d->lim_nu[dof]; /* same grid cell as last time */
-		return scale * d->lim_f[dof];
+		return f * scale * d->lim_f[dof];
 	}
 	if (isfinite(nu)) {
 		double step = log1p(QW_DET_NU_RTOL), k = floor(log(nu) / step);
@@ -243,10 +288,11 @@ static double det_limit(qw_detector *d, unsigned dof, double *nu_out,
 		d->lim_f[dof] = qw_limit_corrected(d->alpha, dof, nu, 1.0);
 		d->lim_nu[dof] = nu;
 	}
-	return scale * d->lim_f[dof];
+	return f * scale * d->lim_f[dof];
 }
 
-/* Screens x: counts missing channels into mask; 0, or a rejection. */
+/* Screens x: marks observed channels (the x part of mask); 0, or a
+ * rejection. */
 static int det_screen(qw_detector *d, const double *x, size_t *nobs)
 {
 	size_t i, m = 0;
@@ -256,8 +302,7 @@ static int det_screen(qw_detector *d, const double *x, size_t *nobs)
 			d->cnt.rej_nonfinite++;
 			return QW_ERROR(QW_ERANGE);
 		}
-		d->mask[i] = (unsigned char)(isnan(x[i]) ? 0 : 1);
-		m += d->mask[i];
+		m += isnan(x[i]) ? 0u : 1u;
 	}
 	if (m == 0) {
 		d->cnt.rej_empty++;
@@ -267,18 +312,59 @@ static int det_screen(qw_detector *d, const double *x, size_t *nobs)
 	return 0;
 }
 
-/* Scores x into res (before learning); 0 or a counted rejection. */
-static int det_score(qw_detector *d, const double *x, size_t nobs,
-		     double w, struct qw_result *res)
+/* Score of a partial model vector v: its observed part against the
+ * marginal model, less (var1) the score of the observed lags alone, the
+ * conditional score of x_t given x_{t-1}.  *k: conditioning components. */
+static int det_score_partial(qw_detector *d, const double *v, double *q,
+			     unsigned *dof, double *k)
 {
+	size_t i, p = d->par.p;
+	double ql = 0.0, qv;
+	unsigned dl = 0, dv;
 	int rc;
 
-	if (nobs == d->par.p) {
-		res->dof = (unsigned)nobs;
-		rc = qw_ewcov_score(d->ew, x, w, &res->q);
+	*k = 0.0;
+	if (d->par.dynamics == QW_DYN_VAR1) {
+		for (i = 0; i < p; i++) {
+			d->vlag[i] = v[i];
+			d->vlag[p + i] = NAN;
+			dl += isnan(v[i]) ? 0u : 1u;
+		}
+		/* First: the residual left behind is then v's own. */
+		if (dl > 0 && (rc = qw_ewcov_score_subset(d->ew, d->vlag, &ql,
+							  &dl)) != 0)
+			return rc;
+		*k = (double)dl;
+	}
+	if ((rc = qw_ewcov_score_subset(d->ew, v, &qv, &dv)) != 0)
+		return rc;
+	*q = qv > ql ? qv - ql : 0.0;
+	*dof = dv - dl;
+	return 0;
+}
+
+/* Scores the model vector into res (before learning); 0 or a counted
+ * rejection.  *k: the conditioning components behind res->q. */
+static int det_score(qw_detector *d, const double *v, int complete,
+		     double w, struct qw_result *res, double *k)
+{
+	const double *y;
+	size_t j;
+	int rc;
+
+	if (complete) {
+		rc = qw_ewcov_score(d->ew, v, w, &res->q);
+		res->dof = (unsigned)d->par.p;
+		*k = qw_det_k(d);
+		if (rc == 0 && *k > 0) {
+			/* var1: the innovation's part of y = L^-1 r. */
+			y = qw_ewcov_solved(d->ew);
+			res->q = 0.0;
+			for (j = d->par.p; j < d->dim; j++)
+				res->q += y[j] * y[j];
+		}
 	} else {
-		d->cnt.partial++;
-		rc = qw_ewcov_score_subset(d->ew, x, &res->q, &res->dof);
+		rc = det_score_partial(d, v, &res->q, &res->dof, k);
 	}
 	if (rc == QW_ERANGE) {
 		/* A non-finite score: the reading overflowed, or the factor
@@ -296,30 +382,55 @@ static int det_score(qw_detector *d, const double *x, size_t nobs,
 		qw_ewcov_verify(d->ew);
 		return rc;
 	}
-	res->scored = 1;
-	d->cnt.scored++;
-	res->limit = det_limit(d, res->dof, &res->nu, &res->scale);
+	res->limit = det_limit(d, res->dof, qw_det_nu(d, *k), &res->nu,
+			       &res->scale);
 	return 0;
 }
 
-/* Learning decision and step (file top).  Returns 1 if learned. */
-static int det_learn(qw_detector *d, int complete, int warm, double w,
-		     struct qw_result *res)
+/* MEWMA step (file top) on the complete reading just scored: z' = (1-rho)
+ * z + rho y / sqrt(c), res->q = |z|^2 (2-rho)/rho against the limit for
+ * the raise rate; the p-value is the chi-square(p) of steady state. */
+static void det_mewma(qw_detector *d, double k, struct qw_result *res)
+{
+	const double *y = qw_ewcov_solved(d->ew) + (size_t)k;
+	double rho = d->par.smoothing, nu = qw_det_nu(d, k), dp;
+	double c, is, t2 = 0.0;
+	size_t i, p = d->par.p;
+
+	dp = (double)p;
+	c = d->par.correct ? qw_det_scale(d) * nu / (nu - dp - 1.0) : 1.0;
+	/* Too little data for the mean of F: nothing enters z yet. */
+	is = nu > dp + 1.0 && isfinite(c) ? 1.0 / sqrt(c) : 0.0;
+	for (i = 0; i < p; i++) {
+		d->z[i] = (1.0 - rho) * d->z[i] + rho * y[i] * is;
+		t2 += d->z[i] * d->z[i];
+	}
+	res->q = t2 * (2.0 - rho) / rho;
+	res->limit = d->par.fixed_limit > 0
+			     ? d->par.fixed_limit
+			     : d->par.limit_factor * d->mewma_h;
+	res->nu = INFINITY;
+	res->scale = 1.0;
+}
+
+/* Learning decision and step (file top).  over, q, limit: the reading's
+ * own score against its plain limit.  Returns 1 if learned. */
+static int det_learn(qw_detector *d, const double *x, int warm, double w,
+		     int over, double q, double limit, int event)
 {
 	double gain = 1.0;
 
-	if (!complete)
-		return 0;
 	if (warm && d->par.learn != QW_LEARN_ALL) {
-		if (res->over && d->par.learn == QW_LEARN_SKIP)
+		if (over && d->par.learn == QW_LEARN_SKIP)
 			return 0;
-		if (d->alarm.in_alarm || res->event == QW_EVENT_CLEAR)
+		if (d->alarm.in_alarm || event == QW_EVENT_CLEAR)
 			return 0;
-		if (res->over)
-			gain = sqrt(res->limit / res->q);
+		if (over)
+			gain = sqrt(limit / q);
 	}
 	if (qw_ewcov_learn(d->ew, gain) != 0)
 		return 0;
+	qw_dyn_learn(d->dyn, x, w);
 	d->tshare = (1.0 - w) * d->tshare + (warm ? w : 0.0);
 	d->cnt.learned++;
 	/* Self-check of the whole factor now and then: every installed
@@ -332,49 +443,51 @@ static int det_learn(qw_detector *d, int complete, int warm, double w,
 	return 1;
 }
 
-static void det_explain(qw_detector *d, struct qw_result *res)
+/* Attribution of the reading over the limit: the MYT conditional terms
+ * of the model vector's observed components; under var1 only the x_t
+ * channels are ranked (removing x_t,i from the joint score leaves the
+ * lag's score as it is, so its drop is the innovation's own). */
+static void det_explain(qw_detector *d, const double *v,
+			struct qw_result *res)
 {
-	res->ncontrib = qw_explain(qw_ewcov_factor(d->ew), d->par.p,
-				   qw_ewcov_residual(d->ew), d->mask, d->work,
-				   d->contrib);
+	size_t i, n, m = 0, off = d->dim - d->par.p;
+
+	for (i = 0; i < d->dim; i++)
+		d->mask[i] = (unsigned char)!isnan(v[i]);
+	n = qw_explain(qw_ewcov_factor(d->ew), d->dim,
+		       qw_ewcov_residual(d->ew), d->mask, d->work, d->contrib);
+	for (i = 0; i < n; i++) {
+		if (d->contrib[i].channel < off)
+			continue;
+		d->contrib[m] = d->contrib[i];
+		d->contrib[m++].channel -= (unsigned)off;
+	}
+	res->ncontrib = m;
 	res->contrib = d->contrib;
 }
 
-int qw_detector_add(qw_detector *d, double t, const double *x,
-		    struct qw_result *res)
+/* The first reading that fills the model vector: the mean, nothing to
+ * score. */
+static void det_first(qw_detector *d, double t, const double *x,
+		      struct qw_result *res)
 {
-	size_t nobs = 0;
-	double w, lam = d->lam;
-	int rc, warm;
+	qw_ewcov_first(d->ew, d->dyn->v);
+	qw_dyn_learn(d->dyn, x, 1.0);
+	d->last_t = t;
+	d->cnt.learned++;
+	res->learned = 1;
+}
 
-	memset(res, 0, sizeof *res);
-	res->limit = INFINITY;
-	res->in_alarm = d->alarm.in_alarm;
-	d->cnt.readings++;
-	if ((rc = det_screen(d, x, &nobs)) != 0)
-		return rc;
-	if (d->par.time_based && qw_ewcov_count(d->ew) > 0) {
-		if (!(t >= d->last_t)) {
-			d->cnt.rej_time++;
-			return QW_ERROR(QW_ETIME);
-		}
-		lam = det_lam(t - d->last_t, d->par.half_life);
-	}
-	if (qw_ewcov_count(d->ew) == 0) {
-		/* The first complete reading is the mean; nothing to score. */
-		if (nobs < d->par.p) {
-			d->cnt.partial++;
-			return 0;
-		}
-		qw_ewcov_first(d->ew, x);
-		d->last_t = t;
-		d->cnt.learned++;
-		res->learned = 1;
-		return 0;
-	}
-	w = qw_ewcov_weight(d->ew, lam);
-	if ((rc = det_score(d, x, nobs, w, res)) != 0)
-		return rc;
+/* Alarm rule, attribution and learning for a scored reading. */
+static void det_decide(qw_detector *d, double t, const double *x,
+		       int complete, int learn, double w,
+		       struct qw_result *res, double k)
+{
+	double q = res->q, limit = res->limit, nu, sc;
+	int warm, over;
+
+	if (d->par.mode == QW_MODE_MEWMA)
+		det_mewma(d, k, res);
 	warm = qw_ewcov_count(d->ew) >= d->par.warmup;
 	res->over = warm && res->q > res->limit;
 	if (warm) {
@@ -383,134 +496,80 @@ int qw_detector_add(qw_detector *d, double t, const double *x,
 		d->cnt.alarms += res->event == QW_EVENT_RAISE;
 	}
 	if (res->over)
-		det_explain(d, res);
-	res->learned = det_learn(d, nobs == d->par.p, warm, w, res);
+		det_explain(d, d->dyn->v, res);
+	if (d->par.mode == QW_MODE_MEWMA && learn && complete) {
+		/* The guard watches each reading at the plain limit. */
+		limit = det_limit(d, res->dof, qw_det_nu(d, k), &nu, &sc);
+		over = warm && q > limit;
+	} else {
+		over = res->over;
+	}
+	if (learn && complete)
+		res->learned = det_learn(d, x, warm, w, over, q, limit,
+					 res->event);
 	if (res->learned)
 		d->last_t = t;
+}
+
+int qw_detector_add_flags(qw_detector *d, double t, const double *x,
+			  unsigned flags, struct qw_result *res)
+{
+	size_t nobs = 0;
+	double w, lam = d->lam, k = 0.0;
+	int rc, complete, lag, learn;
+
+	memset(res, 0, sizeof *res);
+	res->limit = INFINITY;
+	res->in_alarm = d->alarm.in_alarm;
+	d->cnt.readings++;
+	if ((rc = det_screen(d, x, &nobs)) != 0) {
+		qw_dyn_break(d->dyn); /* no lag pair across a rejection */
+		return rc;
+	}
+	if (d->par.time_based && qw_ewcov_count(d->ew) > 0) {
+		if (!(t >= d->last_t)) {
+			d->cnt.rej_time++;
+			return QW_ERROR(QW_ETIME);
+		}
+		lam = det_lam(t - d->last_t, d->par.half_life);
+	}
+	if (nobs < d->par.p)
+		d->cnt.partial++;
+	lag = qw_dyn_vector(d->dyn, t, x, &complete);
+	if (!lag)
+		d->cnt.unlagged++;
+	learn = !d->frozen && !(flags & QW_ADD_NOLEARN);
+	if (!lag && d->par.dynamics == QW_DYN_AR1)
+		goto done; /* no innovation without the previous reading */
+	if (qw_ewcov_count(d->ew) == 0) {
+		if (complete && learn)
+			det_first(d, t, x, res);
+		goto done;
+	}
+	/* MEWMA charts complete readings only: z holds over a partial one. */
+	if (!complete && d->par.mode == QW_MODE_MEWMA)
+		goto done;
+	w = qw_ewcov_weight(d->ew, lam);
+	if ((rc = det_score(d, d->dyn->v, complete, w, res, &k)) != 0) {
+		qw_dyn_break(d->dyn);
+		return rc;
+	}
+	res->scored = 1;
+	d->cnt.scored++;
+	det_decide(d, t, x, complete, learn, w, res, k);
 	d->alarm_run = d->alarm.in_alarm ? d->alarm_run + 1 : 0;
 	if (d->par.relearn_after > 0 && d->alarm_run >= d->par.relearn_after) {
 		qw_detector_rebaseline(d);
 		res->event = QW_EVENT_CLEAR;
 	}
+done:
+	qw_dyn_step(d->dyn, t, x);
 	res->in_alarm = d->alarm.in_alarm;
 	return 0;
 }
 
-const struct qw_counters *qw_detector_counters(const qw_detector *d)
+int qw_detector_add(qw_detector *d, double t, const double *x,
+		    struct qw_result *res)
 {
-	return &d->cnt;
-}
-
-const struct qw_params *qw_detector_params(const qw_detector *d)
-{
-	return &d->par;
-}
-
-const qw_ewcov *qw_detector_model(const qw_detector *d)
-{
-	return d->ew;
-}
-
-int qw_detector_in_alarm(const qw_detector *d)
-{
-	return d->alarm.in_alarm;
-}
-
-double qw_detector_alpha(const qw_detector *d)
-{
-	return d->alpha;
-}
-
-/* Fixed point of ewcov.c's recursions: nu = (2-lam)/lam, scale =
- * 1/(1-lam), and a model learned wholly under the guard (tshare = 1). */
-double qw_detector_steady_nu(const qw_detector *d)
-{
-	return d->par.correct ? (2.0 - d->lam) / d->lam : INFINITY;
-}
-
-double qw_detector_steady_scale(const qw_detector *d)
-{
-	return d->par.correct ? 1.0 / (d->kappa * (1.0 - d->lam)) : 1.0;
-}
-
-double qw_detector_steady_limit(const qw_detector *d)
-{
-	return qw_limit_corrected(d->alpha, (unsigned)d->par.p,
-				  qw_detector_steady_nu(d),
-				  qw_detector_steady_scale(d));
-}
-
-double qw_detector_limit(const qw_detector *d)
-{
-	unsigned p = (unsigned)d->par.p;
-
-	if (!d->par.correct)
-		return qw_limit_chisq(d->alpha, p);
-	return qw_limit_corrected(d->alpha, p, qw_ewcov_nu(d->ew),
-				  qw_ewcov_scale(d->ew) /
-					  (1.0 - (1.0 - d->kappa) * d->tshare));
-}
-
-/* Detector state: this head, then the model's own state. */
-struct det_state_head {
-	uint64_t p;
-	struct qw_counters cnt;
-	uint64_t window, alarm_run;
-	uint32_t under, in_alarm;
-	double last_t, tshare;
-};
-
-size_t qw_detector_state_len(const qw_detector *d)
-{
-	return sizeof(struct det_state_head) + qw_ewcov_state_len(d->ew);
-}
-
-void qw_detector_state_get(const qw_detector *d, void *buf)
-{
-	struct det_state_head h;
-
-	memset(&h, 0, sizeof h);
-	h.p = d->par.p;
-	h.cnt = d->cnt;
-	h.window = d->alarm.window;
-	h.alarm_run = d->alarm_run;
-	h.under = d->alarm.under;
-	h.in_alarm = (uint32_t)d->alarm.in_alarm;
-	h.last_t = d->last_t;
-	h.tshare = d->tshare;
-	memcpy(buf, &h, sizeof h);
-	qw_ewcov_state_get(d->ew, (unsigned char *)buf + sizeof h);
-}
-
-int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
-{
-	struct det_state_head h;
-	uint64_t mask;
-	int rc;
-
-	if (len != qw_detector_state_len(d))
-		return QW_ERROR(QW_EMISMATCH);
-	memcpy(&h, buf, sizeof h);
-	if (h.p != d->par.p)
-		return QW_ERROR(QW_EMISMATCH);
-	mask = d->alarm.m == 64 ? ~(uint64_t)0
-				: (((uint64_t)1 << d->alarm.m) - 1);
-	if (h.in_alarm > 1 || (h.window & ~mask) != 0 || isnan(h.last_t) ||
-	    !(h.tshare >= 0.0 && h.tshare <= 1.0))
-		return QW_ERROR(QW_EFORMAT);
-	rc = qw_ewcov_state_set(d->ew, (const unsigned char *)buf + sizeof h,
-				len - sizeof h);
-	if (rc != 0)
-		return rc;
-	d->cnt = h.cnt;
-	d->alarm.window = h.window;
-	d->alarm.count = (unsigned)__builtin_popcountll(h.window);
-	d->alarm.under = h.under;
-	d->alarm.in_alarm = (int)h.in_alarm;
-	d->alarm_run = h.alarm_run;
-	d->last_t = h.last_t;
-	d->tshare = h.tshare;
-	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
-	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
-	return 0;
+	return qw_detector_add_flags(d, t, x, 0, res);
 }

@@ -449,6 +449,18 @@ double qw_ewcov_scale(const qw_ewcov *ew)
 	return ew->W1 > 0.0 ? (1.0 + ew->V) / ew->W1 : INFINITY;
 }
 
+void qw_ewcov_rescale(qw_ewcov *ew, double s)
+{
+	size_t i, n = qw_packed_len(ew->p);
+	double r = sqrt(s), ir = 1.0 / r;
+
+	for (i = 0; i < n; i++)
+		ew->L[i] *= r;
+	for (i = 0; i < ew->p; i++)
+		ew->iL[i] *= ir;
+	ew->pending = 0;
+}
+
 int qw_ewcov_verify(qw_ewcov *ew)
 {
 	size_t j, i, off = 0, p = ew->p;

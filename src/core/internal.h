@@ -36,4 +36,50 @@ const double *qw_ewcov_residual(const qw_ewcov *ew);
  * standardised residual, q = y'y), valid until the next qw_ewcov_learn. */
 const double *qw_ewcov_solved(const qw_ewcov *ew);
 
+/* ---- dynamics.c: temporal whitening (see its top comment) ------------- */
+
+struct qw_dyn {
+	enum qw_dynamics kind;
+	size_t p;            /* channels */
+	size_t dim;          /* model vector: p, or 2p for var1 */
+	double max_gap;      /* seconds: longest step of a lag pair */
+	const double *floor; /* p floors (std dev), owned by the detector */
+	double *prev;        /* p: the previous accepted reading (NaN missing) */
+	double prev_t;       /* its time, seconds */
+	int have_prev;       /* prev holds a reading */
+	double *ar;          /* ar1: per channel m1, m2 (EW means of x_{t-1},
+				x_t), s11 (EW variance of x_{t-1}), s12 (EW
+				lag covariance), 4p */
+	uint64_t n;          /* ar1: pairs learned */
+	double *v;           /* dim: the model vector of the current reading */
+};
+
+struct qw_dyn *qw_dyn_alloc(enum qw_dynamics kind, size_t p, double max_gap,
+			    const double *floor);
+void qw_dyn_free(struct qw_dyn *dy);
+/* Forget the ar1 coefficients and the previous reading. */
+void qw_dyn_reset(struct qw_dyn *dy);
+/* Fills dy->v for the reading x at t (NaN = missing) and returns 1 when it
+ * forms a lag pair with the previous reading (always without dynamics);
+ * *complete: no component of v is missing.  Under ar1 without a lag pair
+ * v is not filled and the reading cannot be scored. */
+int qw_dyn_vector(struct qw_dyn *dy, double t, const double *x,
+		  int *complete);
+/* The model learned the pair (prev, x) with weight w: ar1 learns it too. */
+void qw_dyn_learn(struct qw_dyn *dy, const double *x, double w);
+/* x (at t) becomes the previous reading; qw_dyn_break forgets it (the
+ * next reading has no lag pair). */
+void qw_dyn_step(struct qw_dyn *dy, double t, const double *x);
+void qw_dyn_break(struct qw_dyn *dy);
+/* State for checkpoints: qw_dyn_state_len bytes (0 without dynamics);
+ * _check: QW_EFORMAT when a value is impossible; _set checks, then sets
+ * (nothing changed on an error). */
+size_t qw_dyn_state_len(const struct qw_dyn *dy);
+void qw_dyn_state_get(const struct qw_dyn *dy, unsigned char *b);
+int qw_dyn_state_check(const struct qw_dyn *dy, const unsigned char *b);
+int qw_dyn_state_set(struct qw_dyn *dy, const unsigned char *b);
+
+/* ewcov.c: multiplies the model's covariance (and floor share) by s > 0. */
+void qw_ewcov_rescale(qw_ewcov *ew, double s);
+
 #endif

@@ -193,7 +193,7 @@ struct qw_params {
 				   0: plain chi-square (for comparison) */
 	enum qw_dynamics dynamics; /* temporal whitening; default none */
 	double max_gap;         /* seconds: consecutive readings further apart
-				   do not form a lag pair; 0 = 3 / rate */
+				   do not form a lag pair; 0 = 1.5 / rate */
 	enum qw_mode mode;      /* plain (default) or mewma */
 	double smoothing;       /* mewma weight rho in (0, 1]; default 0.1 */
 	double fixed_limit;     /* > 0: use this limit (full dof) instead of

@@ -14,7 +14,7 @@
 					   copy or a truncated ASCII file
 					   cannot pass for a checkpoint */
 #define QW_CKPT_MAGIC_LEN 8
-#define QW_CKPT_VERSION 1u           /* format version of this layout */
+#define QW_CKPT_VERSION 2u           /* format version of this layout (2: whitening, MEWMA and fixed-model state) */
 #define QW_CKPT_ORDER 0x01020304u    /* written in host order: tells the
 					payload's byte order */
 #define QW_CKPT_HEADER 48            /* bytes before the group name */

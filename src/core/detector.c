@@ -392,20 +392,14 @@ static int det_score(qw_detector *d, const double *v, int complete,
  * the raise rate; the p-value is the chi-square(p) of steady state. */
 static void det_mewma(qw_detector *d, double k, struct qw_result *res)
 {
-	const double *y = qw_ewcov_solved(d->ew) + (size_t)k;
-	double rho = d->par.smoothing, nu = qw_det_nu(d, k), dp;
-	double c, is, t2 = 0.0;
-	size_t i, p = d->par.p;
+	double nu = qw_det_nu(d, k), dp = (double)d->par.p, c;
 
-	dp = (double)p;
 	c = d->par.correct ? qw_det_scale(d) * nu / (nu - dp - 1.0) : 1.0;
 	/* Too little data for the mean of F: nothing enters z yet. */
-	is = nu > dp + 1.0 && isfinite(c) ? 1.0 / sqrt(c) : 0.0;
-	for (i = 0; i < p; i++) {
-		d->z[i] = (1.0 - rho) * d->z[i] + rho * y[i] * is;
-		t2 += d->z[i] * d->z[i];
-	}
-	res->q = t2 * (2.0 - rho) / rho;
+	res->q = qw_mewma_step(d->z, d->par.p, d->par.smoothing,
+			       qw_ewcov_solved(d->ew) + (size_t)k,
+			       nu > dp + 1.0 && isfinite(c) ? 1.0 / sqrt(c)
+							    : 0.0);
 	res->limit = d->par.fixed_limit > 0
 			     ? d->par.fixed_limit
 			     : d->par.limit_factor * d->mewma_h;

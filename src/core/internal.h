@@ -79,6 +79,11 @@ void qw_dyn_state_get(const struct qw_dyn *dy, unsigned char *b);
 int qw_dyn_state_check(const struct qw_dyn *dy, const unsigned char *b);
 int qw_dyn_state_set(struct qw_dyn *dy, const unsigned char *b);
 
+/* mewma.c: one MEWMA step, z' = (1-rho) z + rho ys y (p values; ys scales
+ * y to unit variance); returns T2 = |z'|^2 (2-rho)/rho. */
+double qw_mewma_step(double *z, size_t p, double rho, const double *y,
+		     double ys);
+
 /* ewcov.c: multiplies the model's covariance (and floor share) by s > 0. */
 void qw_ewcov_rescale(qw_ewcov *ew, double s);
 

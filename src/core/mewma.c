@@ -35,7 +35,7 @@
 #include <gsl/gsl_integration.h>
 #include <gsl/gsl_sf_gamma.h>
 
-#include "quadwatch.h"
+#include "internal.h"
 
 #define MEWMA_QUAD_INTERVALS 200   /* workspace of the adaptive rule */
 #define MEWMA_QUAD_RTOL 1e-8       /* relative error of u(h) */
@@ -113,6 +113,19 @@ double qw_mewma_uprate(double h, unsigned dof, double rho)
 		res = NAN;
 	gsl_integration_workspace_free(ws);
 	return res;
+}
+
+double qw_mewma_step(double *z, size_t p, double rho, const double *y,
+		     double ys)
+{
+	double t2 = 0.0;
+	size_t i;
+
+	for (i = 0; i < p; i++) {
+		z[i] = (1.0 - rho) * z[i] + rho * y[i] * ys;
+		t2 += z[i] * z[i];
+	}
+	return t2 * (2.0 - rho) / rho;
 }
 
 double qw_mewma_limit(double rate, unsigned dof, double rho)

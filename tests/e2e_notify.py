@@ -9,7 +9,8 @@ $NOTIFY_SOCKET.  Checked:
   - WATCHDOG=1 at half of WATCHDOG_USEC (200 ms -> 100 ms), idle and while
     readings arrive, never later than WATCHDOG_USEC;
   - STATUS= lines: readings/s over the refresh window (compared with the
-    readings the test sent inside it) and the groups in alarm by name;
+    readings the test sent inside it) and the groups in alarm by name, the
+    list cut with "..." when 20 long names do not fit in 1024 bytes;
   - SIGHUP: RELOADING=1 with MONOTONIC_USEC (CLOCK_MONOTONIC, as
     sd_notify(3) specifies), then READY=1; a refused reload says so;
   - SIGTERM: STOPPING=1, exit 0;
@@ -342,5 +343,48 @@ q.check("<4>warn: WATCHDOG_USEC=soon" in dj.logtext(),
         "bad WATCHDOG_USEC not warned: %s" % dj.logtext())
 q.note("journal stream: every line has its syslog priority (%s)" %
        ", ".join("<%s> %s" % (PRIORITY[k], k) for k in sorted(seen)))
+
+# 8. more groups in alarm than one datagram can name: the list is cut
+#    with "..." and the datagram stays within 1024 bytes
+NG, NAME_LEN, NOK, NBAD = 20, 60, 100, 30   # 20 names of 60 bytes > 1024
+names_all = ["g%02d_" % i + "x" * (NAME_LEN - 4) for i in range(NG)]
+pub3 = q.Publisher()
+groups = {n: {"channels": ["a", "b"], "half_life": 200, "rate": 10,
+              "warmup": 50, "floor": [0.01, 0.01]} for n in names_all}
+text = q.ini(tmp, groups, [">" + pub3.endpoint])
+mgr3 = Manager(os.path.join(tmp, "notify-many"))
+dm = Notified("many", text, {"NOTIFY_SOCKET": mgr3.addr})
+mgr3.wait("READY")
+rng = q.np.random.default_rng(1618)
+for i, n in enumerate(names_all):
+    pub3.wait_sub(n)
+    lo = rng.standard_normal(NOK + NBAD)
+    xy = q.np.column_stack([2.385 + lo, 1.5 * lo + 0.1 * rng.standard_normal(NOK + NBAD)])
+    xy[NOK:, 1] += 10.0                       # 100 noise std devs off
+    tt = 1.7e9 + 0.1 * q.np.arange(NOK + NBAD)
+    pub3.send(n, q.binary(tt, xy, 0))
+end = time.monotonic() + q.WAIT
+while time.monotonic() < end:
+    stg = dm.status()["groups"]
+    if sum(g["in_alarm"] for g in stg.values()) == NG:
+        break
+    time.sleep(0.05)
+q.check(sum(g["in_alarm"] for g in stg.values()) == NG, "not all in alarm")
+while True:
+    _, kv = mgr3.wait("STATUS", timeout=STATUS_EVERY + q.WAIT)
+    if status_line(kv)[1] == NG:
+        break
+line = "STATUS=" + kv["STATUS"]
+_, inalarm, ngroups, listed = status_line(kv)
+q.check(ngroups == NG and len(line) <= 1024 and line.endswith(", ..."),
+        "long group list: %d bytes: %r" % (len(line), line[-80:]))
+shown = listed[:-len(", ...")].split(", ")
+q.check(shown == names_all[:len(shown)] and 0 < len(shown) < NG,
+        "names listed: %r" % shown)
+q.note("%d groups in alarm: %d named in a %d-byte STATUS line, then ..." %
+       (NG, len(shown), len(line)))
+rc, _ = dm.stop()
+q.check(rc == 0, "many: exit %d" % rc)
+pub3.close()
 pub.close()
 print("ok")

@@ -98,6 +98,10 @@ void qw_run_notify_ready(struct run_notify *rn, const struct run_daemon *dm)
 
 	if (!qw_notify_on(&rn->n))
 		return;
+	/* the watchdog runs from the start: the first ping goes with READY,
+	 * however long the restore took */
+	if (rn->ping_every > 0)
+		strcat(msg, "WATCHDOG=1\n");
 	notify_status(rn, dm, now, msg, strlen(msg), sizeof msg);
 	notify_send(rn, msg);
 	rn->next_ping = rn->ping_every > 0 ? now + rn->ping_every : 0;

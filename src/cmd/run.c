@@ -7,6 +7,8 @@
  * (run_ingest.c), answer control requests and publish stats
  * (run_report.c).  Signal handlers only set flags; a poll is never longer
  * than RUN_TICK_MAX, so SIGTERM/SIGINT end the loop well within a second.
+ * Under a service manager the daemon reports ready, reloading and stopping,
+ * a status line, and pings the watchdog from the loop (run_notify.c).
  *
  * Workload: one thread; at full rate the loop wakes for batches of
  * messages, so its own cost is a zmq_poll per RUN_BATCH_MAX_MSGS. */

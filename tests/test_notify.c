@@ -159,7 +159,8 @@ static void test_too_long_message(void **st)
 
 static void test_bad_addresses(void **st)
 {
-	static const char *const bad[] = {"run/notify", "notify", "vsock:2:1"};
+	static const char *const bad[] = {"run/notify", "notify", "vsock:2:1",
+					   "@", "/"};
 	struct qw_notify n;
 	char err[128], path[200];
 	size_t i;

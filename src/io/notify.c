@@ -35,7 +35,7 @@ static int notify_address(struct qw_notify *n, const char *s, char *err,
 {
 	size_t len = strlen(s);
 
-	if (s[0] != '/' && s[0] != '@') {
+	if ((s[0] != '/' && s[0] != '@') || len < 2) {
 		qw_errbuf(err, errlen, "NOTIFY_SOCKET=%s: not a path or an "
 			  "abstract socket name", s);
 		return QW_ERROR(QW_EINVAL);

@@ -7,6 +7,8 @@
  * (run_ingest.c), answer control requests and publish stats
  * (run_report.c).  Signal handlers only set flags; a poll is never longer
  * than RUN_TICK_MAX, so SIGTERM/SIGINT end the loop well within a second.
+ * Under a service manager the daemon reports ready, reloading and stopping,
+ * a status line, and pings the watchdog from the loop (run_notify.c).
  *
  * Workload: one thread; at full rate the loop wakes for batches of
  * messages, so its own cost is a zmq_poll per RUN_BATCH_MAX_MSGS. */
@@ -16,6 +18,7 @@
 
 #include "cmd.h"
 #include "run.h"
+#include "run_notify.h"
 
 /* The only process-wide state besides the log level: signal flags. */
 static volatile sig_atomic_t run_stop;
@@ -78,10 +81,13 @@ static int run_args(int argc, char **argv, const char **path)
 	return *path == NULL ? run_usage() : 0;
 }
 
-/* Milliseconds until the next timer, at most RUN_TICK_MAX. */
-static long run_timeout_ms(const struct run_daemon *dm)
+/* Milliseconds until the next timer (the watchdog ping's too), at most
+ * RUN_TICK_MAX. */
+static long run_timeout_ms(const struct run_daemon *dm,
+			   const struct run_notify *rn)
 {
-	double next = qw_run_next_timer(dm), wait = RUN_TICK_MAX;
+	double next = qw_run_notify_next(rn, qw_run_next_timer(dm));
+	double wait = RUN_TICK_MAX;
 	double now = qw_log_monotonic();
 
 	if (next > 0 && next - now < wait)
@@ -118,12 +124,13 @@ static void run_final_checkpoint(struct run_daemon *dm)
 		qw_log(QW_LOG_ERROR, "final checkpoint failed: %s", err);
 }
 
-static void run_step_reload(struct run_daemon *dm)
+static void run_step_reload(struct run_daemon *dm, struct run_notify *rn)
 {
 	if (!run_hup)
 		return;
 	run_hup = 0;
-	qw_run_reload(dm);
+	qw_run_notify_reloading(rn);
+	qw_run_notify_reloaded(rn, dm, qw_run_reload(dm));
 }
 
 /* Inputs first, control last: a reload from control renumbers the
@@ -140,13 +147,13 @@ static void run_step_sockets(struct run_daemon *dm)
 	qw_run_zap(dm); /* CURVE handshakes waiting on the ZAP handler */
 }
 
-static int run_loop(struct run_daemon *dm)
+static int run_loop(struct run_daemon *dm, struct run_notify *rn)
 {
 	int rc;
 
 	while (!run_stop) {
-		run_step_reload(dm);
-		rc = qw_bus_poll(dm->poller, run_timeout_ms(dm));
+		run_step_reload(dm, rn);
+		rc = qw_bus_poll(dm->poller, run_timeout_ms(dm, rn));
 		if (rc < 0) {
 			qw_log(QW_LOG_ERROR, "poll: %s", qw_bus_strerror());
 			return QW_EXIT_FAIL;
@@ -154,6 +161,7 @@ static int run_loop(struct run_daemon *dm)
 		if (rc == 0)
 			run_step_sockets(dm);
 		run_step_timers(dm);
+		qw_run_notify_tick(rn, dm);
 	}
 	return QW_EXIT_OK;
 }
@@ -161,6 +169,7 @@ static int run_loop(struct run_daemon *dm)
 int qw_cmd_run(int argc, char **argv)
 {
 	struct run_daemon dm;
+	struct run_notify rn;
 	const char *path;
 	int rc;
 
@@ -178,11 +187,15 @@ int qw_cmd_run(int argc, char **argv)
 	}
 	qw_log(QW_LOG_INFO, "running %s: %zu groups, %zu inputs", path,
 	       dm.cfg.ngroups, dm.cfg.ninputs);
-	rc = run_loop(&dm);
+	qw_run_notify_open(&rn);
+	qw_run_notify_ready(&rn, &dm); /* bound, connected, restored */
+	rc = run_loop(&dm, &rn);
+	qw_run_notify_stopping(&rn);
 	qw_log(QW_LOG_INFO, "stopping: %llu readings, %llu messages",
 	       (unsigned long long)dm.tot.readings,
 	       (unsigned long long)dm.tot.received);
 	run_final_checkpoint(&dm);
 	qw_run_teardown(&dm);
+	qw_run_notify_close(&rn);
 	return rc;
 }

@@ -38,6 +38,13 @@ void qw_log_limited(struct qw_log_limit *lim, int level, const char *fmt,
 void qw_errbuf(char *err, size_t errlen, const char *fmt, ...)
 	__attribute__((format(printf, 3, 4)));
 
+/* Decides the line format from the environment: 1 when stderr is the
+ * journal stream named by JOURNAL_STREAM (lines then start "<N>", the
+ * syslog priority, without a timestamp), 0 otherwise (plain timestamped
+ * lines).  Runs by itself before the first line; call it again only after
+ * redirecting stderr. */
+int qw_log_journal_detect(void);
+
 /* Monotonic seconds (CLOCK_MONOTONIC), for schedules and rate limits. */
 double qw_log_monotonic(void);
 

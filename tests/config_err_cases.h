@@ -92,9 +92,19 @@ static const struct err_case err_cases[] = {
 	{G "clear = 2.5\n", "t.ini:3: [group a] clear: expected"},
 	{G "learn = maybe\n", "t.ini:3: [group a] learn: expected skip, clip "
 	 "or all; got 'maybe'"},
-	{G "mode = mewma\n", "t.ini:3: [group a] mode: expected plain: mewma "
-	 "is not supported in this version"},
-	{G "mode = fancy\n", "t.ini:3: [group a] mode: expected plain; got"},
+	{G "mode = fancy\n", "t.ini:3: [group a] mode: expected plain or "
+	 "mewma; got 'fancy'"},
+	{G "mode = mewma\npersist = 2/3\n", "t.ini:4: [group a] persist: "
+	 "expected 1/1 with mode = mewma"},
+	{G "dynamics = var2\n", "t.ini:3: [group a] dynamics: expected none, "
+	 "ar1 or var1; got 'var2'"},
+	{G "max_gap = 3\n", "t.ini:3: [group a] max_gap: expected a duration"},
+	{G "max_gap = -1s\n", "t.ini:3: [group a] max_gap: expected a "
+	 "duration"},
+	{G "smoothing = 0\n", "t.ini:3: [group a] smoothing: expected the "
+	 "MEWMA weight, a number in (0, 1]"},
+	{G "smoothing = 1.5\n", "t.ini:3: [group a] smoothing: expected the "
+	 "MEWMA weight"},
 	{G "correct = maybe\n", "t.ini:3: [group a] correct: expected yes or "
 	 "no"},
 	{G "warmup = -1\n", "t.ini:3: [group a] warmup: expected a whole "

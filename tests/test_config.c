@@ -326,7 +326,9 @@ static void test_group_keys(void **state)
 		"floor = 2.385\n"
 		"persist = 3/5\nclear = 17\nlearn = clip\ncorrect = no\n"
 		"mode = plain\nalarms_per_day = 0.73\n"
-		"[group b]\nchannels = x:1, y/2\nfloor = 0, 0.5\nlearn = ALL\n",
+		"[group b]\nchannels = x:1, y/2\nfloor = 0, 0.5\nlearn = ALL\n"
+		"dynamics = VAR1\nmax_gap = 2.385s\nmode = mewma\n"
+		"smoothing = 0.15\n",
 		&c);
 	assert_int_equal(c.ngroups, 2);
 	g = &c.groups[0];
@@ -345,6 +347,15 @@ static void test_group_keys(void **state)
 	assert_string_equal(g->channels[1], "y/2");
 	assert_true(g->floor[0] == 0 && g->floor[1] == 0.5);
 	assert_int_equal(g->params.learn, QW_LEARN_ALL);
+	assert_int_equal(g->params.dynamics, QW_DYN_VAR1);
+	assert_true(g->params.max_gap == 2.385);
+	assert_int_equal(g->params.mode, QW_MODE_MEWMA);
+	assert_true(g->params.smoothing == 0.15);
+	/* Defaults where the keys are absent. */
+	g = &c.groups[0];
+	assert_int_equal(g->params.dynamics, QW_DYN_NONE);
+	assert_true(g->params.max_gap == 0);
+	assert_int_equal(g->params.mode, QW_MODE_PLAIN);
 	qw_config_free(&c);
 }
 

@@ -11,6 +11,7 @@
 #include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 
 #include "auth.h"
@@ -101,6 +102,7 @@ static void chk_params(const struct qw_group_conf *g)
 {
 	const struct qw_params *par = &g->params;
 	static const char *const learn[] = {"skip", "clip", "all"};
+	static const char *const dyn[] = {"none", "ar1", "var1"};
 
 	chk_kv(2, "line", "%d", g->line);
 	chk_list(g, 0);
@@ -128,6 +130,16 @@ static void chk_params(const struct qw_group_conf *g)
 	else
 		chk_kv(2, "relearn_after", "never");
 	chk_kv(2, "correct", "%s", par->correct ? "yes" : "no");
+	chk_kv(2, "dynamics", "%s", dyn[par->dynamics <= QW_DYN_VAR1 ?
+					par->dynamics : 0]);
+	if (par->dynamics != QW_DYN_NONE)
+		chk_kv(2, "max_gap", "%.10g s%s",
+		       par->max_gap > 0 ? par->max_gap
+					: QW_GAP_INTERVALS / par->rate,
+		       par->max_gap > 0 ? "" : " (the default)");
+	chk_kv(2, "mode", "%s", par->mode == QW_MODE_MEWMA ? "mewma" : "plain");
+	if (par->mode == QW_MODE_MEWMA)
+		chk_kv(2, "smoothing", "%.10g", par->smoothing);
 	chk_list(g, 1);
 }
 
@@ -137,8 +149,17 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 		     int quiet)
 {
 	const struct qw_params *par = &g->params;
-	qw_detector *d = qw_detector_alloc(par);
-	double alpha, plain, steady, nu, scale;
+	struct timespec t0, t1;
+	qw_detector *d;
+	double alpha, plain, steady, nu, scale, ms;
+
+	/* Building the detector solves the limits (MEWMA: a quadrature); its
+	 * time is what each start and reload of the group costs. */
+	clock_gettime(CLOCK_MONOTONIC, &t0);
+	d = qw_detector_alloc(par);
+	clock_gettime(CLOCK_MONOTONIC, &t1);
+	ms = (double)(t1.tv_sec - t0.tv_sec) * 1e3 +
+	     (double)(t1.tv_nsec - t0.tv_nsec) / 1e6;
 
 	if (d == NULL) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s]: cannot "
@@ -168,7 +189,10 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	chk_params(g);
 	chk_kv(2, "alpha", "%.10g", alpha);
 	chk_kv(2, "limit_chisq", "%.10g", plain);
-	chk_kv(2, "limit_steady", "%.10g", steady);
+	chk_kv(2, "limit_steady", "%.10g%s", steady,
+	       par->mode == QW_MODE_MEWMA ? " (MEWMA statistic)" : "");
+	if (par->mode == QW_MODE_MEWMA)
+		chk_kv(2, "limit_solved_in", "%.3g ms", ms);
 	chk_kv(2, "steady_nu", "%.17g", nu);
 	chk_kv(2, "steady_scale", "%.17g", scale);
 	chk_kv(2, "exceedances_per_day", "%.10g",

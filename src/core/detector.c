@@ -166,7 +166,7 @@ static int det_alloc_parts(qw_detector *d, const struct qw_params *par)
 {
 	size_t p = par->p, dim, i;
 	double gap = par->max_gap > 0 ? par->max_gap
-				      : QW_DEF_GAP_INTERVALS / par->rate;
+				      : QW_GAP_INTERVALS / par->rate;
 
 	d->floor = calloc(p, sizeof *d->floor);
 	d->dyn = d->floor ? qw_dyn_alloc(par->dynamics, p, gap, d->floor)

@@ -9,11 +9,6 @@
 /* Smoothing weight of MEWMA mode when none is configured: the value of
  * the published tables' most used column (Lowry et al. 1992). */
 #define QW_DEF_SMOOTHING 0.1
-/* Lag pairs: the longest step, in nominal reading intervals, when
- * max_gap is not configured: timing jitter of up to half an interval
- * still pairs, a lost reading does not (x_t given x_{t-2} is not the
- * one-step prediction the model learns). */
-#define QW_DEF_GAP_INTERVALS 1.5
 
 struct qw_detector {
 	struct qw_params par;      /* par.floor points at floor */

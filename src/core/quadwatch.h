@@ -193,7 +193,8 @@ struct qw_params {
 				   0: plain chi-square (for comparison) */
 	enum qw_dynamics dynamics; /* temporal whitening; default none */
 	double max_gap;         /* seconds: consecutive readings further apart
-				   do not form a lag pair; 0 = 1.5 / rate */
+				   do not form a lag pair; 0 =
+				   QW_GAP_INTERVALS / rate */
 	enum qw_mode mode;      /* plain (default) or mewma */
 	double smoothing;       /* mewma weight rho in (0, 1]; default 0.1 */
 	double fixed_limit;     /* > 0: use this limit (full dof) instead of
@@ -204,6 +205,12 @@ struct qw_params {
 };
 
 #define QW_MAX_P 4096 /* channels per group; the factor is p^2/2 doubles */
+/* Lag pairs: the longest step, in nominal reading intervals, when
+ * max_gap is not configured: timing jitter of up to half an interval
+ * still pairs, a lost reading does not (x_t given x_{t-2} is not the
+ * one-step prediction the model learns). */
+#define QW_GAP_INTERVALS 1.5
+
 /* half_life = QW_HALF_LIFE_NONE: no forgetting, weights 1/n (an ordinary
  * mean and covariance: what a fit from a recording estimates). */
 #define QW_HALF_LIFE_NONE INFINITY

@@ -25,6 +25,7 @@
 enum grp_key {
 	GK_CHANNELS, GK_HALF_LIFE, GK_ALARMS, GK_RATE, GK_WARMUP, GK_PERSIST,
 	GK_CLEAR, GK_FLOOR, GK_LEARN, GK_RELEARN, GK_MODE, GK_CORRECT,
+	GK_DYNAMICS, GK_MAX_GAP, GK_SMOOTHING,
 	GK_COUNT
 };
 
@@ -231,14 +232,61 @@ static int grp_learn(struct cfg_parse *ps, const char *v)
 	return cfg_bad(ps, "expected skip, clip or all; got '%s'", v);
 }
 
+/* One of names[0..n-1] (any case) into *out; else a message listing them. */
+static int grp_choice(struct cfg_parse *ps, const char *v,
+		      const char *const *names, size_t n, const char *list,
+		      int *out)
+{
+	size_t i;
+
+	for (i = 0; i < n; i++)
+		if (strcasecmp(v, names[i]) == 0) {
+			*out = (int)i;
+			return 0;
+		}
+	return cfg_bad(ps, "expected %s; got '%s'", list, v);
+}
+
 static int grp_mode(struct cfg_parse *ps, const char *v)
 {
-	if (strcasecmp(v, "plain") == 0)
-		return 0;
-	if (strcasecmp(v, "mewma") == 0)
-		return cfg_bad(ps, "expected plain: mewma is not supported in "
-				   "this version");
-	return cfg_bad(ps, "expected plain; got '%s'", v);
+	static const char *const names[] = {"plain", "mewma"};
+
+	return grp_choice(ps, v, names, 2, "plain or mewma", &ps->grp.mode);
+}
+
+static int grp_dynamics(struct cfg_parse *ps, const char *v)
+{
+	/* index = enum qw_dynamics */
+	static const char *const names[] = {"none", "ar1", "var1"};
+
+	return grp_choice(ps, v, names, 3, "none, ar1 or var1",
+			  &ps->grp.dynamics);
+}
+
+static int grp_max_gap(struct cfg_parse *ps, const char *v)
+{
+	double d;
+	int unit;
+
+	if (qw_num_duration(v, &unit, &d) != 0 || !unit || !(d > 0) ||
+	    !isfinite(d))
+		return cfg_bad(ps, "expected %s (the longest step between two "
+				   "readings that still pair); got '%s'",
+			       grp_durations, v);
+	ps->grp.max_gap = d;
+	return 0;
+}
+
+static int grp_smoothing(struct cfg_parse *ps, const char *v)
+{
+	double x;
+
+	if (qw_num_double(v, (size_t)-1, 0, 0, &x) != 0 || !(x > 0) ||
+	    !(x <= 1))
+		return cfg_bad(ps, "expected the MEWMA weight, a number in "
+				   "(0, 1]; got '%s'", v);
+	ps->grp.smoothing = x;
+	return 0;
 }
 
 static int grp_correct(struct cfg_parse *ps, const char *v)
@@ -263,6 +311,9 @@ const struct cfg_key cfg_group_keys[GK_COUNT + 1] = {
 	[GK_RELEARN] = {"relearn_after", grp_relearn, 0},
 	[GK_MODE] = {"mode", grp_mode, 0},
 	[GK_CORRECT] = {"correct", grp_correct, 0},
+	[GK_DYNAMICS] = {"dynamics", grp_dynamics, 0},
+	[GK_MAX_GAP] = {"max_gap", grp_max_gap, 0},
+	[GK_SMOOTHING] = {"smoothing", grp_smoothing, 0},
 	[GK_COUNT] = {NULL, NULL, 0},
 };
 
@@ -344,6 +395,14 @@ static int grp_params(struct cfg_parse *ps, struct qw_group_conf *g)
 		par->learn = (enum qw_learn)t->learn;
 	if (kl[GK_CORRECT])
 		par->correct = t->correct;
+	if (kl[GK_DYNAMICS])
+		par->dynamics = (enum qw_dynamics)t->dynamics;
+	if (kl[GK_MAX_GAP])
+		par->max_gap = t->max_gap;
+	if (kl[GK_MODE])
+		par->mode = (enum qw_mode)t->mode;
+	if (kl[GK_SMOOTHING])
+		par->smoothing = t->smoothing;
 	par->floor = g->floor;
 	if (grp_readings(t->warmup, t->warmup_s, par->rate, &n) != 0)
 		return cfg_fail(ps, QW_ERROR(QW_EFORMAT), kl[GK_WARMUP],
@@ -361,6 +420,17 @@ static int grp_params(struct cfg_parse *ps, struct qw_group_conf *g)
 				"day than %g readings/s with persist %u/%u can "
 				"raise", par->rate, par->persist_k,
 				par->persist_m);
+	if (par->mode == QW_MODE_MEWMA &&
+	    (par->persist_k != 1 || par->persist_m != 1))
+		return cfg_fail(ps, QW_ERROR(QW_EFORMAT), grp_line(ps, GK_PERSIST),
+				"persist", "expected 1/1 with mode = mewma (the "
+				"EWMA already accumulates evidence over readings; "
+				"its limit is solved for the raise rate)");
+	if (par->dynamics == QW_DYN_VAR1 && 2 * par->p > QW_MAX_P)
+		return cfg_fail(ps, QW_ERROR(QW_EFORMAT),
+				grp_line(ps, GK_DYNAMICS), "dynamics",
+				"expected at most %d channels with var1 (its "
+				"model holds twice the channels)", QW_MAX_P / 2);
 	if (qw_params_check(par) != 0)
 		return cfg_fail(ps, QW_ERROR(QW_EFORMAT), t->line, NULL,
 				"expected settings the detector accepts; it "

@@ -7,7 +7,7 @@
 
 #include "config.h"
 
-#define CFG_KEYS_MAX 16       /* keys in the largest section table */
+#define CFG_KEYS_MAX 32       /* keys in the largest section table */
 #define CFG_KEY_MAX 64        /* bytes in a key name as written */
 #define CFG_SECTION_MAX 96    /* bytes in "group NAME" as written */
 
@@ -30,6 +30,10 @@ struct cfg_group_tmp {
 	double relearn;                  /* readings, or seconds if relearn_s */
 	int relearn_s;
 	int correct;
+	int dynamics;                    /* enum qw_dynamics */
+	double max_gap;                  /* seconds */
+	int mode;                        /* enum qw_mode */
+	double smoothing;                /* MEWMA rho */
 };
 
 struct cfg_parse {

@@ -229,6 +229,22 @@ static void warn_rules(void **state)
 			 QW_WARN_AUTOCORR | QW_WARN_RATE);
 }
 
+/* 1001 readings over 100 s: 10/s, as configured; over 50 s 20/s (warn);
+ * 140 s 7.14/s (within 1.5x); 160 s 6.25/s (warn). */
+static void warn_pace(void **state)
+{
+	(void)state;
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 100.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 50.0),
+			 QW_WARN_PACE);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 140.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 160.0),
+			 QW_WARN_PACE);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1, 100.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 0.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, NAN), 0);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -240,6 +256,7 @@ int main(void)
 		cmocka_unit_test(lag1_hand),
 		cmocka_unit_test(per_day),
 		cmocka_unit_test(warn_rules),
+		cmocka_unit_test(warn_pace),
 	};
 
 	return cmocka_run_group_tests(tests, NULL, NULL);

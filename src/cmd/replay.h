@@ -133,7 +133,7 @@ struct replay {
 	uint64_t cur_done, cur_total;
 };
 
-#define RP_WARN_MAX 2    /* warnings per group (enum qw_summary_warn) */
+#define RP_WARN_MAX 3    /* warnings per group (enum qw_summary_warn) */
 #define RP_WARN_LEN 512  /* bytes per warning text */
 #define RP_ALERT_MAX 8192 /* bytes: as the daemon's alert buffer */
 

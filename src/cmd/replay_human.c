@@ -67,7 +67,7 @@ static void rp_h_dependence(FILE *f, const struct replay_stats *st)
 	size_t i;
 
 	if (isfinite(st->alarms_per_day))
-		fprintf(f, "  alarms per day: %.3g delivered over %.6g s of "
+		fprintf(f, "  alarms per day: %.4g delivered over %.6g s of "
 			"data time after warm-up, %g configured\n",
 			st->alarms_per_day, st->guard_s, st->conf_apd);
 	else

@@ -42,12 +42,21 @@ static void rp_warnings(const struct replay_group *g, struct replay_stats *st)
 			 par->persist_k, par->persist_m, g->conf->name);
 	if (st->warn & QW_WARN_RATE)
 		snprintf(st->warnings[st->nwarn++], RP_WARN_LEN,
-			 "%.3g alarms per day delivered, far above the %g "
+			 "%.4g alarms per day delivered, far above the %g "
 			 "configured, with persist %u/%u: if this recording "
 			 "is of normal operation, its readings are not "
 			 "independent; " RP_ADVICE, st->alarms_per_day,
 			 st->conf_apd, par->persist_k, par->persist_m,
 			 g->conf->name);
+	if (st->warn & QW_WARN_PACE)
+		snprintf(st->warnings[st->nwarn++], RP_WARN_LEN,
+			 "readings came at %.4g per second of data time "
+			 "after warm-up, not the configured rate = %g: the "
+			 "limit is solved per reading for that rate, so the "
+			 "delivered alarms per day differ from the configured "
+			 "by about that factor; set rate in the [group %s] "
+			 "section to the data's own", (double)(st->lag1_n - 1)
+			 / st->guard_s, par->rate, g->conf->name);
 }
 
 static void rp_rejected(const struct replay_group *g, struct replay_stats *st)
@@ -88,6 +97,7 @@ static void rp_dependence(const struct replay_group *g,
 	st->warn = qw_summary_warn(par->persist_k, st->lag1, n, st->alarms,
 				   st->conf_apd * st->guard_s
 				   / QW_SECONDS_PER_DAY);
+	st->warn |= qw_summary_warn_pace(par->rate, n, st->guard_s);
 	rp_warnings(g, st);
 }
 

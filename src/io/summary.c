@@ -199,3 +199,14 @@ int qw_summary_warn(unsigned k, double r1, size_t n, uint64_t alarms,
 		w |= QW_WARN_RATE;
 	return w;
 }
+
+int qw_summary_warn_pace(double rate, size_t n, double span_s)
+{
+	double got;
+
+	if (n < 2 || !(span_s > 0.0) || !isfinite(span_s) || !(rate > 0.0))
+		return 0;
+	got = (double)(n - 1) / span_s;
+	return got > QW_WARN_PACE_FACTOR * rate ||
+	       got * QW_WARN_PACE_FACTOR < rate ? QW_WARN_PACE : 0;
+}

@@ -94,7 +94,8 @@ double qw_summary_per_day(uint64_t count, double span_s);
  * readings that are not independent; a bit mask of these: */
 enum qw_summary_warn {
 	QW_WARN_AUTOCORR = 1, /* lag-1 autocorrelation too high for k > 1 */
-	QW_WARN_RATE = 2      /* delivered alarms far above configured, k > 1 */
+	QW_WARN_RATE = 2,     /* delivered alarms far above configured, k > 1 */
+	QW_WARN_PACE = 4      /* readings come at another rate than `rate` */
 };
 
 #define QW_WARN_LAG1 0.1   /* r1 above which a k-of-m rule with k > 1
@@ -121,5 +122,17 @@ enum qw_summary_warn {
  * mask (0: none). */
 int qw_summary_warn(unsigned k, double r1, size_t n, uint64_t alarms,
 		    double expected);
+
+#define QW_WARN_PACE_FACTOR 1.5 /* data rate vs configured `rate`: alpha
+			      is solved per reading from alarms_per_day /
+			      (rate 86400), so the delivered alarms per day
+			      scale with the true reading rate; a factor of
+			      1.5 either way is a 50% error in the delivered
+			      rate, beyond jitter and short gaps */
+
+/* QW_WARN_PACE when n readings over span_s seconds of data time come at
+ * (n - 1) / span_s per second, more than QW_WARN_PACE_FACTOR away from
+ * rate (either way); else 0 (also when n < 2 or the span is 0). */
+int qw_summary_warn_pace(double rate, size_t n, double span_s);
 
 #endif

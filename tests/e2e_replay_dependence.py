@@ -14,6 +14,7 @@ import csv
 import json
 import os
 import subprocess
+import xml.etree.ElementTree as ET
 
 import qwtest as q
 
@@ -171,6 +172,7 @@ with open(page) as f:
     html = f.read()
 q.check('class="warn"' in html and "dynamics = var1" in html,
         "report: no warning")
+ET.fromstring(html)  # still well-formed XML (raises if not)
 
 # The independent readings against a configured rate of 10/s: the
 # delivered alarms per day are still counted in data time (alarms / days,

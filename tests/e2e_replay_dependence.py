@@ -191,6 +191,29 @@ out, rows = replay(ini11, ar)
 g = check_figures("AR(1) 1/1", out, rows)
 q.check(g["warnings"] == [], "AR(1) 1/1: warnings %r" % g["warnings"])
 
+# Two groups on the same columns, 3/5 and 1/1: the top level sums the
+# delivered and configured rates, takes the highest lag-1 and lists the
+# warnings of the 3/5 group only, each naming it.
+two = os.path.join(tmp, "two.ini")
+g35 = {"channels": CH, "half_life": 2000, "alarms_per_day": 200,
+       "rate": RATE, "warmup": WARMUP, "persist": "3/5"}
+g11 = dict(g35, persist="1/1", alarms_per_day=50)
+with open(two, "w") as f:
+    f.write(q.ini(tmp, {"plant": g35, "plant_b": g11},
+                  [">tcp://127.0.0.1:5999"]))
+out, rows = replay(two, ar)
+ga, gb = out["groups"]["plant"], out["groups"]["plant_b"]
+q.check(out["alarms_per_day"] == ga["alarms_per_day"] + gb["alarms_per_day"]
+        and out["configured_alarms_per_day"] == 250.0 and
+        out["score_lag1_autocorr"] == max(ga["score_lag1_autocorr"],
+                                          gb["score_lag1_autocorr"]),
+        "two groups, top level: %r" % {k: out[k] for k in (
+            "alarms_per_day", "configured_alarms_per_day",
+            "score_lag1_autocorr")})
+q.check(gb["warnings"] == [] and len(ga["warnings"]) >= 1 and
+        out["warnings"] == ["group plant: " + w for w in ga["warnings"]],
+        "two groups, warnings %r" % out["warnings"])
+
 # Zero span: every reading at the same time (allowed with a half-life in
 # readings): no delivered rate; and no reading after warm-up: no figures.
 t0 = np.full(2 * WARMUP, 1.75e9)

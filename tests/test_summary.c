@@ -1,6 +1,6 @@
 /* test_summary.c: the statistics of `quadwatch replay` (src/io/summary.c)
- * against small examples computed by hand (worked in the comments), one
- * cross-checked with scipy.stats.kstest. */
+ * against small examples computed by hand (worked in the comments), some
+ * cross-checked with scipy.stats (kstest, poisson.sf). */
 #include <math.h>
 #include <setjmp.h>
 #include <stdarg.h>
@@ -163,6 +163,88 @@ static void minmax_columns(void **state)
 	assert_close(hi[3], 5.25);
 }
 
+/* 2.5, 0.5, 4.5, 0.5: mean 2, deviations 0.5, -1.5, 2.5, -1.5;
+ * numerator 0.5(-1.5) + (-1.5)(2.5) + 2.5(-1.5) = -8.25, denominator
+ * 0.25 + 2.25 + 6.25 + 2.25 = 11 -> r1 = -0.75.  A rising ramp 1..5:
+ * deviations -2, -1, 0, 1, 2; numerator (-2)(-1) + (-1)(0) + (0)(1) +
+ * (1)(2) = 4, denominator 10 -> 0.4. */
+static void lag1_hand(void **state)
+{
+	const double v[] = {2.5, 0.5, 4.5, 0.5};
+	const double ramp[] = {1.0, 2.0, 3.0, 4.0, 5.0};
+	const double flat[] = {2.385, 2.385, 2.385};
+
+	(void)state;
+	assert_close(qw_summary_lag1(v, 4), -0.75);
+	assert_close(qw_summary_lag1(ramp, 5), 0.4);
+	assert_true(isnan(qw_summary_lag1(v, 1)));
+	assert_true(isnan(qw_summary_lag1(v, 0)));
+	assert_true(isnan(qw_summary_lag1(flat, 3))); /* 0/0 */
+	/* the checker can fail: the order of the values matters */
+	assert_false(close_to(qw_summary_lag1(ramp, 5),
+			      qw_summary_lag1(v, 4)));
+}
+
+/* 3 alarms over 43200 s (half a day): 6 per day; no span: NaN. */
+static void per_day(void **state)
+{
+	(void)state;
+	assert_close(qw_summary_per_day(3, 43200.0), 6.0);
+	assert_close(qw_summary_per_day(7, 2.385 * 86400.0), 7.0 / 2.385);
+	assert_close(qw_summary_per_day(0, 10.0), 0.0);
+	assert_true(isnan(qw_summary_per_day(3, 0.0)));
+	assert_true(isnan(qw_summary_per_day(3, -1.0)));
+	assert_true(isnan(qw_summary_per_day(3, NAN)));
+	assert_true(isnan(qw_summary_per_day(3, INFINITY)));
+}
+
+/* Autocorrelation: k > 1 only, above QW_WARN_LAG1 and 4/sqrt(n).
+ * Rate: scipy.stats.poisson.sf(9, 2) = 4.65e-05 (10 alarms where 2 were
+ * expected: warn), poisson.sf(5, 2) = 0.0166 (6 of 2: no), sf(2, 1) =
+ * 0.0803 (3 of 1: no). */
+static void warn_rules(void **state)
+{
+	(void)state;
+	assert_int_equal(qw_summary_warn(3, 0.5, 10000, 0, 1.0),
+			 QW_WARN_AUTOCORR);
+	assert_int_equal(qw_summary_warn(1, 0.9, 10000, 50, 1.0), 0);
+	assert_int_equal(qw_summary_warn(2, 0.09, 1000000, 0, 1.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.11, 1000000, 0, 1.0),
+			 QW_WARN_AUTOCORR);
+	/* r1 0.5 of 25 readings: 0.5 * 5 = 2.5 standard errors, noise */
+	assert_int_equal(qw_summary_warn(3, 0.5, 25, 0, 1.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.5, 100, 0, 1.0),
+			 QW_WARN_AUTOCORR);
+	assert_int_equal(qw_summary_warn(3, NAN, 10000, 0, 1.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 10, 2.0),
+			 QW_WARN_RATE);
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 6, 2.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 3, 1.0), 0);
+	/* a significant excess that is not twice the configured rate */
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 1500, 1000.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 10, 0.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.0, 10000, 10, NAN), 0);
+	assert_int_equal(qw_summary_warn(1, 0.0, 10000, 10, 2.0), 0);
+	assert_int_equal(qw_summary_warn(3, 0.5, 10000, 10, 2.0),
+			 QW_WARN_AUTOCORR | QW_WARN_RATE);
+}
+
+/* 1001 readings over 100 s: 10/s, as configured; over 50 s 20/s (warn);
+ * 140 s 7.14/s (within 1.5x); 160 s 6.25/s (warn). */
+static void warn_pace(void **state)
+{
+	(void)state;
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 100.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 50.0),
+			 QW_WARN_PACE);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 140.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 160.0),
+			 QW_WARN_PACE);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1, 100.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, 0.0), 0);
+	assert_int_equal(qw_summary_warn_pace(10.0, 1001, NAN), 0);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -171,6 +253,10 @@ int main(void)
 		cmocka_unit_test(quantile_type7),
 		cmocka_unit_test(ks_uniform),
 		cmocka_unit_test(minmax_columns),
+		cmocka_unit_test(lag1_hand),
+		cmocka_unit_test(per_day),
+		cmocka_unit_test(warn_rules),
+		cmocka_unit_test(warn_pace),
 	};
 
 	return cmocka_run_group_tests(tests, NULL, NULL);

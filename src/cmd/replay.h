@@ -133,6 +133,8 @@ struct replay {
 	uint64_t cur_done, cur_total;
 };
 
+#define RP_WARN_MAX 3    /* warnings per group (enum qw_summary_warn) */
+#define RP_WARN_LEN 512  /* bytes per warning text */
 #define RP_ALERT_MAX 8192 /* bytes: as the daemon's alert buffer */
 
 /* replay_input.c: plays one input (CSV or capture).  0, or an exit code
@@ -152,8 +154,18 @@ struct replay_stats {
 	uint64_t readings, scored, eligible, exceedances, alarms;
 	double span_s;           /* t_last - t_first */
 	double days;             /* eligible / rate / 86400 */
-	double alarms_per_day;   /* alarms / days */
 	double expected;         /* configured alarms_per_day * days */
+	double guard_s;          /* data time from the first to the last
+				    eligible reading (max - min), s */
+	double alarms_per_day;   /* delivered: alarms * 86400 / guard_s
+				    (NaN when guard_s is 0) */
+	double conf_apd;         /* configured alarms_per_day */
+	double lag1;             /* lag-1 autocorrelation of the eligible
+				    scores, stream order (NaN: < 2) */
+	size_t lag1_n;           /* scores behind it */
+	int warn;                /* enum qw_summary_warn mask */
+	size_t nwarn;            /* warning texts in warnings[] */
+	char warnings[RP_WARN_MAX][RP_WARN_LEN];
 	double alpha, limit, limit_end;
 	unsigned dof;
 	double tune_limit;       /* empirical (1-alpha) quantile, full dof */

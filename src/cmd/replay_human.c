@@ -1,8 +1,9 @@
 /* replay_human.c: the human summary of a replay (the default output):
  * per group the readings, the alarms raised and per day against the
- * configured rate, the channels that drove them, tuning help and a
- * calibration figure, refusals by cause, and the caution about
- * autocorrelated data.  Numbers as in replay_out.c (same struct). */
+ * configured rate, the lag-1 autocorrelation of the scores and the
+ * warnings about persistence on dependent readings, the channels that
+ * drove the alarms, tuning help and a calibration figure, refusals by
+ * cause, and the caution about autocorrelated data.  Numbers as in replay_out.c (same struct). */
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -60,6 +61,28 @@ static void rp_h_tuning(FILE *f, const struct replay_group *g,
 		? ": p-values are not uniform" : "");
 }
 
+/* Delivered alarms per day, lag-1 autocorrelation, warnings. */
+static void rp_h_dependence(FILE *f, const struct replay_stats *st)
+{
+	size_t i;
+
+	if (isfinite(st->alarms_per_day))
+		fprintf(f, "  alarms per day: %.4g delivered over %.6g s of "
+			"data time after warm-up, %g configured\n",
+			st->alarms_per_day, st->guard_s, st->conf_apd);
+	else
+		fprintf(f, "  alarms per day: not known (no data time after "
+			"warm-up), %g configured\n", st->conf_apd);
+	if (isfinite(st->lag1))
+		fprintf(f, "  scores: lag-1 autocorrelation %.3f over %zu "
+			"after warm-up\n", st->lag1, st->lag1_n);
+	else
+		fprintf(f, "  scores: lag-1 autocorrelation not known (%zu "
+			"after warm-up)\n", st->lag1_n);
+	for (i = 0; i < st->nwarn; i++)
+		fprintf(f, "  warning: %s\n", st->warnings[i]);
+}
+
 static void rp_h_rejected(FILE *f, const struct replay_stats *st)
 {
 	size_t i, n = 0;
@@ -97,9 +120,10 @@ static void rp_h_group(FILE *f, const struct replay *rp,
 		(unsigned long long)st->readings,
 		(unsigned long long)st->eligible, st->days, par->rate,
 		st->span_s);
-	fprintf(f, "  alarms raised: %llu (%.3g per day); expected %.3g "
-		"(%g per day configured)\n", (unsigned long long)st->alarms,
-		st->alarms_per_day, st->expected, par->alarms_per_day);
+	fprintf(f, "  alarms raised: %llu; expected %.3g (%g per day "
+		"configured)\n", (unsigned long long)st->alarms, st->expected,
+		par->alarms_per_day);
+	rp_h_dependence(f, st);
 	fprintf(f, "  readings over the limit: %llu; limit %.4g on %u dof "
 		"(steady), alpha %.3g per reading\n",
 		(unsigned long long)st->exceedances, st->limit, st->dof,

@@ -10,7 +10,10 @@
  * recording would have exceeded at the configured per-reading alpha; the
  * empirical alpha quantile of the eligible p-values is the alpha the model
  * should have used for that.  Calibration: the Kolmogorov-Smirnov distance
- * of the eligible p-values from uniform.
+ * of the eligible p-values from uniform.  Delivered alarms per day: the
+ * alarms raised over the data time from the first to the last eligible
+ * reading; the lag-1 autocorrelation of the eligible scores in stream
+ * order; with persist k > 1 the warnings of qw_summary_warn.
  *
  * Workload: once per replay; two sorts of at most the scored readings. */
 #include <math.h>
@@ -19,6 +22,42 @@
 
 #include "log.h"
 #include "replay.h"
+
+#define RP_ADVICE "whiten the readings (dynamics = var1 or dynamics = " \
+	"ar1 in the [group %s] section) or fit the model from a healthy " \
+	"recording (quadwatch fit)"
+
+/* The texts of st->warn, one sentence each, into st->warnings. */
+static void rp_warnings(const struct replay_group *g, struct replay_stats *st)
+{
+	const struct qw_params *par = &g->conf->params;
+
+	st->nwarn = 0;
+	if (st->warn & QW_WARN_AUTOCORR)
+		snprintf(st->warnings[st->nwarn++], RP_WARN_LEN,
+			 "the scores are strongly autocorrelated (lag-1 "
+			 "%.3g, above %.2g): persist %u/%u assumes "
+			 "independent readings, so alarms come faster than "
+			 "configured; " RP_ADVICE, st->lag1, QW_WARN_LAG1,
+			 par->persist_k, par->persist_m, g->conf->name);
+	if (st->warn & QW_WARN_RATE)
+		snprintf(st->warnings[st->nwarn++], RP_WARN_LEN,
+			 "%.4g alarms per day delivered, far above the %g "
+			 "configured, with persist %u/%u: if this recording "
+			 "is of normal operation, its readings are not "
+			 "independent; " RP_ADVICE, st->alarms_per_day,
+			 st->conf_apd, par->persist_k, par->persist_m,
+			 g->conf->name);
+	if (st->warn & QW_WARN_PACE)
+		snprintf(st->warnings[st->nwarn++], RP_WARN_LEN,
+			 "readings came at %.4g per second of data time "
+			 "after warm-up, not the configured rate = %g: the "
+			 "limit is solved per reading for that rate, so the "
+			 "delivered alarms per day differ from the configured "
+			 "by about that factor; set rate in the [group %s] "
+			 "section to the data's own", (double)(st->lag1_n - 1)
+			 / st->guard_s, par->rate, g->conf->name);
+}
 
 static void rp_rejected(const struct replay_group *g, struct replay_stats *st)
 {
@@ -29,6 +68,37 @@ static void rp_rejected(const struct replay_group *g, struct replay_stats *st)
 	st->rejected[RP_TIME] += c->rej_time;
 	st->rejected[RP_OVERFLOW] += c->rej_overflow;
 	st->rejected[RP_EMPTY] += c->rej_empty;
+}
+
+/* Delivered alarms per day, lag-1 autocorrelation of the eligible scores
+ * (every dof, stream order; buf holds npts doubles) and the warnings. */
+static void rp_dependence(const struct replay_group *g,
+			  struct replay_stats *st, double *buf)
+{
+	const struct qw_params *par = &g->conf->params;
+	double t_lo = INFINITY, t_hi = -INFINITY;
+	size_t i, n = 0;
+
+	for (i = 0; i < g->npts; i++) {
+		const struct replay_point *pt = &g->pts[i];
+
+		if (!pt->warm)
+			continue;
+		buf[n++] = pt->q;
+		/* min and max: time may go backwards when not time-based */
+		t_lo = fmin(t_lo, pt->t);
+		t_hi = fmax(t_hi, pt->t);
+	}
+	st->guard_s = n > 0 ? t_hi - t_lo : 0.0;
+	st->alarms_per_day = qw_summary_per_day(st->alarms, st->guard_s);
+	st->conf_apd = par->alarms_per_day;
+	st->lag1 = qw_summary_lag1(buf, n);
+	st->lag1_n = n;
+	st->warn = qw_summary_warn(par->persist_k, st->lag1, n, st->alarms,
+				   st->conf_apd * st->guard_s
+				   / QW_SECONDS_PER_DAY);
+	st->warn |= qw_summary_warn_pace(par->rate, n, st->guard_s);
+	rp_warnings(g, st);
 }
 
 /* Tuning and calibration from the kept points.  0 or QW_ENOMEM. */
@@ -43,6 +113,7 @@ static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
 		free(pv);
 		return QW_ERROR(QW_ENOMEM);
 	}
+	rp_dependence(g, st, qf);
 	for (i = 0; i < g->npts; i++) {
 		const struct replay_point *pt = &g->pts[i];
 
@@ -83,8 +154,6 @@ int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
 		st->eligible += g->pts[i].warm;
 	st->span_s = c->readings > 0 ? g->t_last - g->t_first : 0.0;
 	st->days = (double)st->eligible / par->rate / QW_SECONDS_PER_DAY;
-	st->alarms_per_day = st->days > 0 ? (double)st->alarms / st->days
-			     : NAN;
 	st->expected = par->alarms_per_day * st->days;
 	st->alpha = qw_detector_alpha(g->det);
 	st->limit = qw_detector_steady_limit(g->det);
@@ -122,6 +191,7 @@ static json_t *rp_json_group(const struct replay *rp,
 {
 	json_t *o = json_object(), *tune = json_object();
 	json_t *top = json_object(), *rej = json_object();
+	json_t *warn = json_array();
 	size_t i;
 
 	jset_u(o, "readings", st->readings);
@@ -136,6 +206,14 @@ static json_t *rp_json_group(const struct replay *rp,
 	json_object_set_new(o, "expected_alarms", jnum(st->expected));
 	json_object_set_new(o, "days", jnum(st->days));
 	json_object_set_new(o, "alarms_per_day", jnum(st->alarms_per_day));
+	json_object_set_new(o, "configured_alarms_per_day",
+			    jnum(st->conf_apd));
+	json_object_set_new(o, "guard_span_s", jnum(st->guard_s));
+	json_object_set_new(o, "score_lag1_autocorr", jnum(st->lag1));
+	jset_u(o, "score_lag1_n", st->lag1_n);
+	json_object_set_new(o, "warnings", warn);
+	for (i = 0; i < st->nwarn; i++)
+		json_array_append_new(warn, json_string(st->warnings[i]));
 	json_object_set_new(o, "span_s", jnum(st->span_s));
 	json_object_set_new(tune, "limit", jnum(st->tune_limit));
 	json_object_set_new(tune, "alpha", jnum(st->tune_alpha));
@@ -180,6 +258,37 @@ static void rp_labels_sum(const struct replay *rp, struct qw_labels *sum)
 	}
 }
 
+/* Folds group st into the top-level totals: counts and alarm rates add
+ * up (the rates of groups with a span), the lag-1 autocorrelation is the
+ * highest, the warnings are listed with their group. */
+static void rp_json_total(const struct replay_group *g,
+			  const struct replay_stats *st,
+			  struct replay_stats *tot, json_t *warn)
+{
+	char buf[RP_WARN_LEN + QW_CONFIG_NAME_MAX + 16];
+	size_t i;
+
+	tot->readings += st->readings;
+	tot->scored += st->scored;
+	tot->eligible += st->eligible;
+	tot->alarms += st->alarms;
+	tot->exceedances += st->exceedances;
+	tot->expected += st->expected;
+	tot->conf_apd += st->conf_apd;
+	if (isfinite(st->alarms_per_day))
+		tot->alarms_per_day = isfinite(tot->alarms_per_day)
+				      ? tot->alarms_per_day
+					+ st->alarms_per_day
+				      : st->alarms_per_day;
+	if (isfinite(st->lag1) && !(tot->lag1 >= st->lag1))
+		tot->lag1 = st->lag1;
+	for (i = 0; i < st->nwarn; i++) {
+		snprintf(buf, sizeof buf, "group %s: %s", g->conf->name,
+			 st->warnings[i]);
+		json_array_append_new(warn, json_string(buf));
+	}
+}
+
 /* Top level: totals over groups; limit, alpha and dof of the first
  * played group. */
 static void rp_json_top(const struct replay *rp, json_t *o,
@@ -200,6 +309,10 @@ static void rp_json_top(const struct replay *rp, json_t *o,
 	json_object_set_new(o, "dof", first_set ? json_integer(tot->dof)
 			    : json_null());
 	json_object_set_new(o, "expected_alarms", jnum(tot->expected));
+	json_object_set_new(o, "alarms_per_day", jnum(tot->alarms_per_day));
+	json_object_set_new(o, "configured_alarms_per_day",
+			    first_set ? jnum(tot->conf_apd) : json_null());
+	json_object_set_new(o, "score_lag1_autocorr", jnum(tot->lag1));
 	jset_u(o, "malformed_rows", rp->csv_bad);
 	jset_u(o, "unknown_topic", rp->unknown_topic);
 	jset_u(o, "events_dropped", rp->events_dropped);
@@ -213,11 +326,14 @@ static void rp_json_top(const struct replay *rp, json_t *o,
 int qw_replay_json(const struct replay *rp)
 {
 	json_t *o = json_object(), *groups = json_object();
+	json_t *warn = json_array();
 	struct replay_stats st, tot;
 	int first = 0, rc = 0;
 	size_t i;
 
 	memset(&tot, 0, sizeof tot);
+	tot.alarms_per_day = NAN;
+	tot.lag1 = NAN;
 	for (i = 0; i < rp->cfg.ngroups && rc == 0; i++) {
 		const struct replay_group *g = &rp->groups[i];
 
@@ -230,16 +346,12 @@ int qw_replay_json(const struct replay *rp)
 			tot.dof = st.dof;
 			first = 1;
 		}
-		tot.readings += st.readings;
-		tot.scored += st.scored;
-		tot.eligible += st.eligible;
-		tot.alarms += st.alarms;
-		tot.exceedances += st.exceedances;
-		tot.expected += st.expected;
+		rp_json_total(g, &st, &tot, warn);
 		json_object_set_new(groups, g->conf->name,
 				    rp_json_group(rp, g, &st));
 	}
 	rp_json_top(rp, o, &tot, first);
+	json_object_set_new(o, "warnings", warn);
 	json_object_set_new(o, "groups", groups);
 	json_object_set(o, "events", rp->events);
 	if (rc == 0 && json_dumpf(o, stdout, JSON_INDENT(2) | JSON_REAL_PRECISION(17)) != 0)

@@ -183,7 +183,11 @@ void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 	}
 	if (label >= 0)
 		g->has_labels = 1;
-	qw_labels_add(&g->labels, label, res.event, res.in_alarm);
+	/* the label metrics count exactly the readings --scores lists: a
+	 * refused reading, or the first one (it becomes the mean), has no
+	 * score, no row and no alarm state of its own */
+	if (res.scored)
+		qw_labels_add(&g->labels, label, res.event, res.in_alarm);
 	if (g->traces != NULL)
 		rp_trace_feed(g, t, x, &res);
 }

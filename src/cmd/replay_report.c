@@ -340,10 +340,13 @@ static void rp_table(FILE *f, const struct replay *rp,
 	rp_row(f, "readings", 20, (double)st->readings);
 	rp_row(f, "scored after warm-up", 20, (double)st->eligible);
 	rp_row(f, "alarms raised", 20, (double)st->alarms);
-	rp_row(f, "alarms per day (observed)", 4, st->alarms_per_day);
+	rp_row(f, "alarms per day (delivered, data time after warm-up)", 4,
+	       st->alarms_per_day);
 	rp_row(f, "alarms expected", 4, st->expected);
 	rp_row(f, "alarms per day (configured)", 4,
 	       g->conf->params.alarms_per_day);
+	rp_row(f, "data time after warm-up (s)", 6, st->guard_s);
+	rp_row(f, "lag-1 autocorrelation of the scores", 3, st->lag1);
 	rp_row(f, "readings over the limit", 20, (double)st->exceedances);
 	rp_row(f, "limit (steady)", 5, st->limit);
 	rp_row(f, "alpha per reading", 4, st->alpha);
@@ -365,7 +368,13 @@ static void rp_table(FILE *f, const struct replay *rp,
 		rp_row(f, "F1", 4, st->lm.f1);
 		rp_row(f, "mean delay (readings)", 4, st->lm.mean_delay);
 	}
-	fputs("</table><p class=\"note\">Readings correlated in time raise "
+	fputs("</table>\n", f);
+	for (i = 0; i < st->nwarn; i++) {
+		fputs("<p class=\"warn\">Warning: ", f);
+		rp_xml_text(f, st->warnings[i]);
+		fputs("</p>\n", f);
+	}
+	fputs("<p class=\"note\">Readings correlated in time raise "
 	      "more alarms than the configured rate; the tuning rows include "
 	      "that effect for this recording.</p></section>\n", f);
 }
@@ -423,7 +432,8 @@ static const char rp_style[] =
 	".3em}section{margin-bottom:1em}table{border-collapse:collapse}"
 	"th,td{padding:3px 12px;border-bottom:1px solid #ddd}th{text-align:"
 	"left;font-weight:normal;color:#555}td{text-align:right;font-"
-	"variant-numeric:tabular-nums}.note{color:#666;font-size:.9em}";
+	"variant-numeric:tabular-nums}.note{color:#666;font-size:.9em}"
+	".warn{color:#8a4b00;background:#fff4e0;padding:.4em .6em}";
 
 static void rp_head(FILE *f, const struct replay *rp)
 {

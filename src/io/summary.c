@@ -1,12 +1,16 @@
-/* summary.c: label metrics, empirical quantiles, KS distance and min/max
- * downsampling for `quadwatch replay` (see summary.h for definitions).
+/* summary.c: label metrics, empirical quantiles, KS distance, min/max
+ * downsampling, lag-1 autocorrelation, alarms per day and the warnings
+ * about persistence on dependent readings for `quadwatch replay` (see
+ * summary.h for definitions).
  *
  * Workload: the label state machine is O(1) per reading, no allocation;
  * quantiles sort the caller's array once (O(n log n), n up to ~10^7 kept
  * post-warm-up scores); the KS distance is one pass over sorted data. */
+#include <limits.h>
 #include <math.h>
 #include <string.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_sort.h>
 #include <gsl/gsl_statistics_double.h>
 
@@ -157,4 +161,52 @@ void qw_summary_minmax(const double *v, size_t n, size_t cols, double *lo,
 				hi[c] = v[i];
 		}
 	}
+}
+
+double qw_summary_lag1(const double *v, size_t n)
+{
+	double r;
+
+	if (n < 2)
+		return NAN;
+	r = gsl_stats_lag1_autocorrelation(v, 1, n);
+	return isfinite(r) ? r : NAN; /* 0/0: all values equal */
+}
+
+double qw_summary_per_day(uint64_t count, double span_s)
+{
+	if (!(span_s > 0.0) || !isfinite(span_s))
+		return NAN;
+	return (double)count * QW_SECONDS_PER_DAY / span_s;
+}
+
+int qw_summary_warn(unsigned k, double r1, size_t n, uint64_t alarms,
+		    double expected)
+{
+	int w = 0;
+
+	if (k <= 1)
+		return 0;
+	if (r1 > QW_WARN_LAG1 &&
+	    r1 * sqrt((double)n) > QW_WARN_LAG1_SIGMAS)
+		w |= QW_WARN_AUTOCORR;
+	/* P(N >= alarms) = Q(alarms - 1) for N ~ Poisson(expected) */
+	if (expected > 0.0 && isfinite(expected) && alarms > 0 &&
+	    (double)alarms >= QW_WARN_RATE_FACTOR * expected &&
+	    alarms - 1 <= UINT_MAX &&
+	    gsl_cdf_poisson_Q((unsigned)(alarms - 1), expected)
+	    < QW_WARN_RATE_PTAIL)
+		w |= QW_WARN_RATE;
+	return w;
+}
+
+int qw_summary_warn_pace(double rate, size_t n, double span_s)
+{
+	double got;
+
+	if (n < 2 || !(span_s > 0.0) || !isfinite(span_s) || !(rate > 0.0))
+		return 0;
+	got = (double)(n - 1) / span_s;
+	return got > QW_WARN_PACE_FACTOR * rate ||
+	       got * QW_WARN_PACE_FACTOR < rate ? QW_WARN_PACE : 0;
 }

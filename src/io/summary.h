@@ -1,8 +1,10 @@
 /* summary.h: the statistics `quadwatch replay` reports, as pure functions
  * over numbers (no files): label metrics against a 0/1 truth column, the
  * empirical quantiles behind the tuning help, and the Kolmogorov-Smirnov
- * distance of p-values from uniform.  Definitions are those of
- * quadwatch-replay(1), section LABELS and TUNING. */
+ * distance of p-values from uniform, the delivered alarm rate and the
+ * lag-1 autocorrelation of the scores with the warnings they raise.
+ * Definitions are those of quadwatch-replay(1), sections DEFINITIONS,
+ * LABELS and WARNINGS. */
 #ifndef QW_SUMMARY_H
 #define QW_SUMMARY_H
 
@@ -76,5 +78,61 @@ double qw_summary_ks_crit05(size_t n);
  * some columns are empty (NaN). */
 void qw_summary_minmax(const double *v, size_t n, size_t cols, double *lo,
 		       double *hi);
+
+/* Lag-1 sample autocorrelation of v[0..n) in stream order (Box & Jenkins,
+ * Time Series Analysis, 1976, eq. 2.1.12; GSL's
+ * gsl_stats_lag1_autocorrelation):
+ *   r1 = sum_{i=1}^{n-1} (v[i] - m)(v[i-1] - m) / sum_{i=0}^{n-1} (v[i] - m)^2
+ * with m the mean of v.  NaN when n < 2 or every value is the same. */
+double qw_summary_lag1(const double *v, size_t n);
+
+/* count events over span_s seconds, per day (86400 s).  NaN when the span
+ * is not positive (one reading, or all at the same time) or not finite. */
+double qw_summary_per_day(uint64_t count, double span_s);
+
+/* Warnings about a persistence rule k of m (quadwatch.ini(5) persist) on
+ * readings that are not independent; a bit mask of these: */
+enum qw_summary_warn {
+	QW_WARN_AUTOCORR = 1, /* lag-1 autocorrelation too high for k > 1 */
+	QW_WARN_RATE = 2,     /* delivered alarms far above configured, k > 1 */
+	QW_WARN_PACE = 4      /* readings come at another rate than `rate` */
+};
+
+#define QW_WARN_LAG1 0.1   /* r1 above which a k-of-m rule with k > 1
+			      visibly over-raises.  Replay of AR(1)
+			      readings (p = 4, persist 3/5, alpha 0.018 and
+			      0.04 per reading, 3e5-6e5 readings): raised
+			      alarms were 1.8-3.1 times configured at r1 =
+			      0.09, 2.5-4.6 at 0.16, 1.4-2.0 at 0.04, and
+			      within Poisson noise of it at r1 = 0; with
+			      persist 1/1 r1 up to 0.8 did not raise the
+			      rate (exceedances cluster into fewer alarms) */
+#define QW_WARN_LAG1_SIGMAS 4.0 /* and above 4/sqrt(n): r1 of n independent
+			      readings has standard error about 1/sqrt(n)
+			      (Bartlett 1946), so independent readings warn
+			      about once in 3e4 replays */
+#define QW_WARN_RATE_FACTOR 2.0 /* delivered at least twice configured */
+#define QW_WARN_RATE_PTAIL 1e-3 /* ... and that many alarms or more has
+			      probability below this for a Poisson count
+			      with the configured mean */
+
+/* The warnings for persist k, lag-1 autocorrelation r1 of n scores, and
+ * alarms raised where expected (configured rate times the span) were
+ * expected; NaN figures raise nothing.  Returns the enum qw_summary_warn
+ * mask (0: none). */
+int qw_summary_warn(unsigned k, double r1, size_t n, uint64_t alarms,
+		    double expected);
+
+#define QW_WARN_PACE_FACTOR 1.5 /* data rate vs configured `rate`: alpha
+			      is solved per reading from alarms_per_day /
+			      (rate 86400), so the delivered alarms per day
+			      scale with the true reading rate; a factor of
+			      1.5 either way is a 50% error in the delivered
+			      rate, beyond jitter and short gaps */
+
+/* QW_WARN_PACE when n readings over span_s seconds of data time come at
+ * (n - 1) / span_s per second, more than QW_WARN_PACE_FACTOR away from
+ * rate (either way); else 0 (also when n < 2 or the span is 0). */
+int qw_summary_warn_pace(double rate, size_t n, double span_s);
 
 #endif

@@ -41,7 +41,8 @@ def parse_ckpt(path):
         b = f.read()
     q.check(b[:8] == b"QWST\r\n\x1a\n", "%s: magic %r" % (path, b[:8]))
     ver, order, fp, p, nlen, saved, slen = struct.unpack_from("<IIQIIqQ", b, 8)
-    q.check(ver == 1 and len(b) == 48 + nlen + slen + 4,
+    # version 2: the state carries whitening, MEWMA and the fixed flag
+    q.check(ver == 2 and len(b) == 48 + nlen + slen + 4,
             "%s: version %d, %d bytes for %d+%d" % (path, ver, len(b), nlen, slen))
     crc, = struct.unpack_from("<I", b, len(b) - 4)
     q.check(zlib.crc32(b[:-4]) == crc, "%s: CRC differs from zlib's" % path)

@@ -29,6 +29,7 @@
 #define FAULT_FROM 6000 /* first faulty reading */
 #define FAULT_TO 6600   /* first reading after the fault */
 #define FLOW_SAG 3.0    /* m3/h lost while the current stays up */
+#define TWO_PI 6.283185307179586476925
 
 static const char *const names[P] = {"suction_kpa", "discharge_kpa",
 				      "flow_m3h", "motor_a"};
@@ -51,7 +52,7 @@ static double normal(void)
 {
 	double u = uniform();
 
-	return sqrt(-2.0 * log(1.0 - u)) * cos(2.0 * M_PI * uniform());
+	return sqrt(-2.0 * log(1.0 - u)) * cos(TWO_PI * uniform());
 }
 
 /* One reading of the skid.  speed: the pump's speed deviation, shared by

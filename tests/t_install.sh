@@ -55,8 +55,10 @@ man_check "$dir/bad.1" && fail "a page with an undefined macro passed"
 export PKG_CONFIG_PATH="$p/lib/pkgconfig" PKG_CONFIG_SYSROOT_DIR="$dest"
 flags=$(pkg-config --cflags --libs quadwatch) || fail "pkg-config quadwatch"
 case "$flags" in *"-I$p/include"*) ;; *) fail "cflags: $flags" ;; esac
+# A sanitized build (make check-asan) installs instrumented objects.
+san=${QW_SANITIZED:+-fsanitize=address,undefined}
 # shellcheck disable=SC2086
-${CC:-cc} -o "$dir/embed" "$p/share/doc/quadwatch/examples/embed.c" $flags \
+${CC:-cc} $san -o "$dir/embed" "$p/share/doc/quadwatch/examples/embed.c" $flags \
 	2>"$dir/cc.err" || fail "build against pkg-config: $(cat "$dir/cc.err")"
 "$dir/embed" >"$dir/embed.out" || fail "installed example exited $?"
 grep -A1 'alarm raised' "$dir/embed.out" | grep -q '1\. flow_m3h' ||

@@ -3,7 +3,8 @@
 # With the default PREFIX (/usr/local): every file is where it belongs;
 # every installed man page renders with `man -l` without a groff or man
 # warning (and a page with a bad macro proves that check can fail); the
-# installed program checks the installed example configuration; the
+# installed program checks the installed example configuration; every
+# function of quadwatch.h is in libquadwatch(3)'s synopsis; the
 # installed embedding example builds with the installed pkg-config file
 # (PKG_CONFIG_PATH and PKG_CONFIG_SYSROOT_DIR into DESTDIR) and runs.
 # With PREFIX=/opt/qw: the unit's paths follow PREFIX and the unit is
@@ -45,6 +46,12 @@ for src in docs/man/*.[135]; do
 	[ -f "$page" ] || fail "man page not installed: $page"
 	man_check "$page" || fail "man -l $page: $(cat "$dir/man.err")"
 	pages=$((pages + 1))
+done
+# libquadwatch(3) keeps up with the header: every function declared in
+# quadwatch.h has its line in the page's SYNOPSIS.
+for f in $(sed -n 's/^[a-z].*[ *]\(qw_[a-z0-9_]*\)(.*/\1/p' src/core/quadwatch.h); do
+	grep -q "^\.BI \".*[ *]$f(" docs/man/libquadwatch.3 ||
+		fail "libquadwatch(3) lacks $f (declared in quadwatch.h)"
 done
 printf '.TH BAD 1\n.SH NAME\nbad \\- page\n.XY undefined macro\n' >"$dir/bad.1"
 man_check "$dir/bad.1" && fail "a page with an undefined macro passed"

@@ -173,7 +173,7 @@ uninstall:
 		$(DESTDIR)$(DOCDIR)/example.ini \
 		$(addprefix $(DESTDIR)$(DOCDIR)/examples/,$(notdir $(EXAMPLE_SRC))) \
 		$(foreach m,$(MAN_PAGES),$(DESTDIR)$(MANDIR)/man$(subst .,,$(suffix $(m)))/$(notdir $(m)))
-	-rmdir $(DESTDIR)$(DOCDIR)/examples $(DESTDIR)$(DOCDIR) 2>/dev/null
+	rmdir $(DESTDIR)$(DOCDIR)/examples $(DESTDIR)$(DOCDIR) 2>/dev/null || true
 
 clean:
 	rm -rf build build-asan build-fuzz

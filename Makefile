@@ -82,6 +82,16 @@ $(BUILD)/tools/%: tools/%.c $(LIBIO) $(LIBCORE)
 
 tests: $(PROG) $(TEST_BIN)
 
+# The embedding example (docs/examples/*.c) links the core library and GSL
+# only, as an acquisition program would; the tests build and run it.
+EXAMPLE_SRC := $(wildcard docs/examples/*.c)
+EXAMPLE_BIN := $(EXAMPLE_SRC:docs/examples/%.c=$(BUILD)/examples/%)
+$(BUILD)/examples/%: docs/examples/%.c $(LIBCORE)
+	@mkdir -p $(@D)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) -o $@ $< $(LIBCORE) \
+		$(shell pkg-config --libs gsl 2>/dev/null) -lm
+tests: $(EXAMPLE_BIN)
+
 check: deps
 	@$(MAKE) --no-print-directory tests
 	@BUILD=$(BUILD) tests/run
@@ -109,6 +119,61 @@ demo: deps
 FUZZ_SECONDS ?= 60
 fuzz: deps
 	@FUZZ_SECONDS=$(FUZZ_SECONDS) tools/fuzz
+
+# make install [PREFIX=/usr/local] [DESTDIR=...]: the program, the core
+# library with its header and pkg-config file, the man pages, the example
+# configuration and the embedding example (DOCDIR), and the systemd unit.
+# The unit and the pkg-config file get the installed paths substituted here.
+PREFIX     ?= /usr/local
+BINDIR     ?= $(PREFIX)/bin
+LIBDIR     ?= $(PREFIX)/lib
+INCLUDEDIR ?= $(PREFIX)/include
+MANDIR     ?= $(PREFIX)/share/man
+DOCDIR     ?= $(PREFIX)/share/doc/quadwatch
+# /etc for PREFIX=/usr (a distribution package), else PREFIX/etc.
+SYSCONFDIR ?= $(if $(filter /usr,$(PREFIX)),/etc,$(PREFIX)/etc)
+UNITDIR    ?= $(PREFIX)/lib/systemd/system
+PKGCONFIGDIR ?= $(LIBDIR)/pkgconfig
+INSTALL    ?= install
+VERSION    ?= 0.1.0
+MAN_PAGES  := $(wildcard docs/man/*.[135])
+GEN        := $(BUILD)/install
+
+.PHONY: install uninstall
+install: $(PROG) $(LIBCORE)
+	@mkdir -p $(GEN)
+	sed -e 's|@PREFIX@|$(PREFIX)|g' -e 's|@LIBDIR@|$(LIBDIR)|g' \
+		-e 's|@INCLUDEDIR@|$(INCLUDEDIR)|g' -e 's|@VERSION@|$(VERSION)|g' \
+		conf/quadwatch.pc.in >$(GEN)/quadwatch.pc
+	sed -e 's|/usr/bin/quadwatch|$(BINDIR)/quadwatch|g' \
+		-e 's|/etc/quadwatch|$(SYSCONFDIR)/quadwatch|g' \
+		conf/quadwatch.service >$(GEN)/quadwatch.service
+	$(INSTALL) -d $(DESTDIR)$(BINDIR) $(DESTDIR)$(LIBDIR) \
+		$(DESTDIR)$(INCLUDEDIR) $(DESTDIR)$(PKGCONFIGDIR) \
+		$(DESTDIR)$(MANDIR)/man1 $(DESTDIR)$(MANDIR)/man3 \
+		$(DESTDIR)$(MANDIR)/man5 $(DESTDIR)$(DOCDIR)/examples \
+		$(DESTDIR)$(UNITDIR)
+	$(INSTALL) -m 755 $(PROG) $(DESTDIR)$(BINDIR)/quadwatch
+	$(INSTALL) -m 644 $(LIBCORE) $(DESTDIR)$(LIBDIR)/libquadwatch.a
+	$(INSTALL) -m 644 src/core/quadwatch.h $(DESTDIR)$(INCLUDEDIR)/quadwatch.h
+	$(INSTALL) -m 644 $(GEN)/quadwatch.pc $(DESTDIR)$(PKGCONFIGDIR)/quadwatch.pc
+	$(INSTALL) -m 644 $(filter %.1,$(MAN_PAGES)) $(DESTDIR)$(MANDIR)/man1
+	$(INSTALL) -m 644 $(filter %.3,$(MAN_PAGES)) $(DESTDIR)$(MANDIR)/man3
+	$(INSTALL) -m 644 $(filter %.5,$(MAN_PAGES)) $(DESTDIR)$(MANDIR)/man5
+	$(INSTALL) -m 644 conf/example.ini $(DESTDIR)$(DOCDIR)/example.ini
+	$(INSTALL) -m 644 $(EXAMPLE_SRC) $(DESTDIR)$(DOCDIR)/examples
+	$(INSTALL) -m 644 $(GEN)/quadwatch.service \
+		$(DESTDIR)$(UNITDIR)/quadwatch.service
+
+uninstall:
+	rm -f $(DESTDIR)$(BINDIR)/quadwatch $(DESTDIR)$(LIBDIR)/libquadwatch.a \
+		$(DESTDIR)$(INCLUDEDIR)/quadwatch.h \
+		$(DESTDIR)$(PKGCONFIGDIR)/quadwatch.pc \
+		$(DESTDIR)$(UNITDIR)/quadwatch.service \
+		$(DESTDIR)$(DOCDIR)/example.ini \
+		$(addprefix $(DESTDIR)$(DOCDIR)/examples/,$(notdir $(EXAMPLE_SRC))) \
+		$(foreach m,$(MAN_PAGES),$(DESTDIR)$(MANDIR)/man$(subst .,,$(suffix $(m)))/$(notdir $(m)))
+	rmdir $(DESTDIR)$(DOCDIR)/examples $(DESTDIR)$(DOCDIR) 2>/dev/null || true
 
 clean:
 	rm -rf build build-asan build-fuzz

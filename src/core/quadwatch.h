@@ -54,7 +54,8 @@ const char *qw_strerror(int code);
  * kept as its lower Cholesky factor L; see ewcov.c for the update. */
 typedef struct qw_ewcov qw_ewcov;
 
-/* floor: p noise floors (std dev, channel units), each > 0.  Copied. */
+/* floor: p noise floors (std dev, channel units), each >= 0 (0: chosen
+ * from the first reading, see ewcov.c).  Copied. */
 qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor);
 void qw_ewcov_free(qw_ewcov *ew);
 /* Forget everything learned (count 0, factor back to the floor). */

@@ -30,11 +30,12 @@
  * [x_{t-1}; x_t] under var1 (scored on its innovation part, with the
  * effective size reduced by the p conditioning channels: a regression on
  * k regressors leaves nu - k degrees of freedom), per-channel AR(1)
- * innovations under ar1.  MEWMA mode (mewma.c) charts an EWMA of the
+ * innovations under ar1.  MEWMA mode (mewma.c) charts an EWMA z of the
  * standardised residual y = L^-1 r that the sweep leaves behind (rescaled
  * by the mean of the F form, scale nu/(nu-p-1) per channel, so estimated
- * parameters do not inflate it), against a limit for the raise rate; the
- * guard then uses each reading's own score against the plain limit.
+ * parameters do not inflate it), scored against z's own EW covariance
+ * (det_mewma), against a limit for the raise rate; the guard then uses
+ * each reading's own score against the plain limit.
  * Workload: the per-reading path is the ewcov sweep plus O(p); no
  * allocation after qw_detector_alloc. */
 #include <math.h>
@@ -126,6 +127,7 @@ void qw_detector_free(qw_detector *d)
 	if (d == NULL)
 		return;
 	qw_ewcov_free(d->ew);
+	qw_ewcov_free(d->zew);
 	qw_dyn_free(d->dyn);
 	free(d->floor);
 	free(d->vfloor);
@@ -192,7 +194,19 @@ static int det_alloc_parts(qw_detector *d, const struct qw_params *par)
 	for (i = 0; i < dim; i++)
 		d->vfloor[i] = d->floor[i % p];
 	d->ew = qw_ewcov_alloc(dim, d->vfloor);
-	return d->ew != NULL ? 0 : QW_ERROR(QW_ENOMEM);
+	if (d->ew == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	if (par->mode == QW_MODE_MEWMA) {
+		/* G's floor: a small share of z's iid standard deviation. */
+		for (i = 0; i < p; i++)
+			d->z[i] = QW_MEWMA_Z_FLOOR *
+				  sqrt(par->smoothing / (2.0 - par->smoothing));
+		d->zew = qw_ewcov_alloc(p, d->z);
+		memset(d->z, 0, p * sizeof *d->z);
+		if (d->zew == NULL)
+			return QW_ERROR(QW_ENOMEM);
+	}
+	return 0;
 }
 
 qw_detector *qw_detector_alloc(const struct qw_params *par)
@@ -239,6 +253,8 @@ int qw_detector_rebaseline(qw_detector *d)
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
 	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
 	memset(d->z, 0, d->par.p * sizeof *d->z);
+	if (d->zew != NULL)
+		qw_ewcov_reset(d->zew);
 	d->alarm_run = 0;
 	d->tshare = 0.0;
 	d->frozen = 0;
@@ -387,24 +403,50 @@ static int det_score(qw_detector *d, const double *v, int complete,
 	return 0;
 }
 
-/* MEWMA step (file top) on the complete reading just scored: z' = (1-rho)
- * z + rho y / sqrt(c), res->q = |z|^2 (2-rho)/rho against the limit for
- * the raise rate; the p-value is the chi-square(p) of steady state. */
+/* MEWMA step (file top) on the complete reading just scored:
+ *   z' = (1-rho) z + rho y / sqrt(c),   res->q = z' G^-1 z'
+ * with G the EW covariance of z itself (its own model, zew).  For iid
+ * residuals G = rho/(2-rho) I and this is the chart of Lowry et al.; but a
+ * residual that keeps some memory (a plant no first-order model whitens
+ * fully: quantised or slow channels, a load that drives several channels
+ * with a lag) makes z wander wider and its components move together, by
+ * 1 + 2 sum_k (1-rho)^k r_k for residual autocorrelations r_k, and a limit
+ * for iid residuals then alarms all day (150 a day instead of 1 on the
+ * demo plant's pump skid).  Learning G from the readings the chart accepts
+ * keeps T2 ~ chi-square(p) in steady state, which is what the limit
+ * assumes.  Before G has readings the iid form stands in (warm-up). */
 static void det_mewma(qw_detector *d, double k, struct qw_result *res)
 {
-	double nu = qw_det_nu(d, k), dp = (double)d->par.p, c;
+	double nu = qw_det_nu(d, k), dp = (double)d->par.p, c, t2, q;
 
 	c = d->par.correct ? qw_det_scale(d) * nu / (nu - dp - 1.0) : 1.0;
 	/* Too little data for the mean of F: nothing enters z yet. */
-	res->q = qw_mewma_step(d->z, d->par.p, d->par.smoothing,
-			       qw_ewcov_solved(d->ew) + (size_t)k,
-			       nu > dp + 1.0 && isfinite(c) ? 1.0 / sqrt(c)
-							    : 0.0);
+	t2 = qw_mewma_step(d->z, d->par.p, d->par.smoothing,
+			   qw_ewcov_solved(d->ew) + (size_t)k,
+			   nu > dp + 1.0 && isfinite(c) ? 1.0 / sqrt(c) : 0.0);
+	res->q = t2;
+	if (qw_ewcov_count(d->zew) > 0 &&
+	    qw_ewcov_score(d->zew, d->z, qw_ewcov_weight(d->zew, d->lam),
+			   &q) == 0)
+		res->q = q;
 	res->limit = d->par.fixed_limit > 0
 			     ? d->par.fixed_limit
 			     : d->par.limit_factor * d->mewma_h;
 	res->nu = INFINITY;
 	res->scale = 1.0;
+}
+
+/* Learns G from a reading the chart accepts, once the model has learned
+ * half its warm-up (before that, z carries the model's own settling). */
+static void det_mewma_learn(qw_detector *d, const struct qw_result *res)
+{
+	if (res->over || d->alarm.in_alarm || res->event == QW_EVENT_CLEAR ||
+	    2 * qw_ewcov_count(d->ew) < d->par.warmup)
+		return;
+	if (qw_ewcov_count(d->zew) == 0)
+		qw_ewcov_first(d->zew, d->z);
+	else
+		qw_ewcov_learn(d->zew, 1.0);
 }
 
 /* Learning decision and step (file top).  over, q, limit: the reading's
@@ -477,7 +519,7 @@ static void det_decide(qw_detector *d, double t, const double *x,
 		       int complete, int learn, double w,
 		       struct qw_result *res, double k)
 {
-	double q = res->q, limit = res->limit, nu, sc;
+	double q = res->q, limit = res->limit;
 	int warm, over;
 
 	if (d->par.mode == QW_MODE_MEWMA)
@@ -491,16 +533,13 @@ static void det_decide(qw_detector *d, double t, const double *x,
 	}
 	if (res->over)
 		det_explain(d, d->dyn->v, res);
-	if (d->par.mode == QW_MODE_MEWMA && learn && complete) {
-		/* The guard watches each reading at the plain limit. */
-		limit = det_limit(d, res->dof, qw_det_nu(d, k), &nu, &sc);
-		over = warm && q > limit;
-	} else {
-		over = res->over;
-	}
+	/* Under MEWMA the guard watches each reading at its plain limit. */
+	over = d->par.mode == QW_MODE_MEWMA ? warm && q > limit : res->over;
 	if (learn && complete)
 		res->learned = det_learn(d, x, warm, w, over, q, limit,
 					 res->event);
+	if (res->learned && d->par.mode == QW_MODE_MEWMA)
+		det_mewma_learn(d, res);
 	if (res->learned)
 		d->last_t = t;
 }

@@ -10,6 +10,10 @@
  * the published tables' most used column (Lowry et al. 1992). */
 #define QW_DEF_SMOOTHING 0.1
 
+/* Noise floor of the MEWMA state's own covariance G, as a share of z's
+ * iid standard deviation sqrt(rho/(2-rho)): a numerical guard only. */
+#define QW_MEWMA_Z_FLOOR 1e-3
+
 struct qw_detector {
 	struct qw_params par;      /* par.floor points at floor */
 	double *floor;             /* p configured floors (0 = auto) */
@@ -26,7 +30,9 @@ struct qw_detector {
 	double *lim_hi;            /* p+1: the next grid point: the cached
 				      value holds for nu in [lim_nu, lim_hi) */
 	double mewma_h;            /* MEWMA limit for the raise rate */
-	double *z;                 /* p: MEWMA state, standardised units */
+	double *z;                 /* p: MEWMA state z, standardised units */
+	qw_ewcov *zew;             /* MEWMA: EW covariance G of z; NULL in
+				      plain mode */
 	double last_t;             /* time of the last learned reading */
 	uint64_t alarm_run;        /* readings since the raise */
 	double kappa;              /* guard bias of Sigma (file top) */

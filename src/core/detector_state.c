@@ -112,13 +112,19 @@ struct det_state_head {
 
 static size_t det_z_len(const qw_detector *d)
 {
-	return d->par.mode == QW_MODE_MEWMA ? d->par.p * sizeof(double) : 0;
+	return d->zew != NULL ? d->par.p * sizeof(double) : 0;
+}
+
+/* MEWMA: z, then its covariance model G. */
+static size_t det_mewma_len(const qw_detector *d)
+{
+	return d->zew != NULL ? det_z_len(d) + qw_ewcov_state_len(d->zew) : 0;
 }
 
 size_t qw_detector_state_len(const qw_detector *d)
 {
 	return sizeof(struct det_state_head) + qw_ewcov_state_len(d->ew) +
-	       qw_dyn_state_len(d->dyn) + det_z_len(d);
+	       qw_dyn_state_len(d->dyn) + det_mewma_len(d);
 }
 
 void qw_detector_state_get(const qw_detector *d, void *buf)
@@ -144,7 +150,10 @@ void qw_detector_state_get(const qw_detector *d, void *buf)
 	b += qw_ewcov_state_len(d->ew);
 	qw_dyn_state_get(d->dyn, b);
 	b += qw_dyn_state_len(d->dyn);
-	memcpy(b, d->z, det_z_len(d));
+	if (d->zew != NULL) {
+		memcpy(b, d->z, det_z_len(d));
+		qw_ewcov_state_get(d->zew, b + det_z_len(d));
+	}
 }
 
 /* 1 when every value after the head is possible: checked before the
@@ -184,14 +193,20 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 	    isnan(h.last_t) || !(h.tshare >= 0.0 && h.tshare <= 1.0) ||
 	    !det_tail_sane(d, z))
 		return QW_ERROR(QW_EFORMAT);
-	/* The whitening state is checked before the model's _set, the last
-	 * step that can fail, and set after it. */
-	if ((rc = qw_dyn_state_check(d->dyn, dyn)) != 0)
+	/* Everything is checked before the model's _set, the last step that
+	 * can fail; the rest is set after it. */
+	if ((rc = qw_dyn_state_check(d->dyn, dyn)) != 0 ||
+	    (d->zew != NULL &&
+	     (rc = qw_ewcov_state_check(d->zew, z + det_z_len(d),
+					qw_ewcov_state_len(d->zew))) != 0))
 		return rc;
 	rc = qw_ewcov_state_set(d->ew, b + sizeof h, elen);
 	if (rc != 0)
 		return rc;
 	qw_dyn_state_set(d->dyn, dyn);
+	if (d->zew != NULL)
+		qw_ewcov_state_set(d->zew, z + det_z_len(d),
+				   qw_ewcov_state_len(d->zew));
 	d->cnt = h.cnt;
 	d->alarm.window = h.window;
 	d->alarm.count = (unsigned)__builtin_popcountll(h.window);
@@ -201,7 +216,8 @@ int qw_detector_state_set(qw_detector *d, const void *buf, size_t len)
 	d->last_t = h.last_t;
 	d->tshare = h.tshare;
 	d->frozen = (int)h.frozen;
-	memcpy(d->z, z, det_z_len(d));
+	if (d->zew != NULL)
+		memcpy(d->z, z, det_z_len(d));
 	memset(d->lim_nu, 0, (d->par.p + 1) * sizeof *d->lim_nu);
 	memset(d->lim_hi, 0, (d->par.p + 1) * sizeof *d->lim_hi);
 	return 0;

@@ -558,34 +558,47 @@ static int ewcov_state_sane(const struct ewcov_state_head *h,
 	return 1;
 }
 
-int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len)
+/* Copies a state's doubles to aligned scratch (sub, Ln: at least the
+ * needed size) and checks them; 0, QW_EMISMATCH or QW_EFORMAT. */
+static int ewcov_state_load(qw_ewcov *ew, const void *buf, size_t len,
+			    struct ewcov_state_head *h)
 {
-	struct ewcov_state_head h;
 	const unsigned char *b = buf;
 	size_t p = ew->p;
-	const double *mu, *fsq, *L;
-	double *tmp;
 
 	if (len != qw_ewcov_state_len(ew))
 		return QW_ERROR(QW_EMISMATCH);
-	memcpy(&h, b, sizeof h);
-	if (h.p != p)
+	memcpy(h, b, sizeof *h);
+	if (h->p != p)
 		return QW_ERROR(QW_EMISMATCH);
-	/* The doubles are copied to aligned storage before they are read:
-	 * sub and Ln are scratch of at least the needed size. */
-	tmp = ew->sub;
-	memcpy(tmp, b + sizeof h, 2 * p * sizeof(double));
-	memcpy(ew->Ln, b + sizeof h + 2 * p * sizeof(double),
+	memcpy(ew->sub, b + sizeof *h, 2 * p * sizeof(double));
+	memcpy(ew->Ln, b + sizeof *h + 2 * p * sizeof(double),
 	       qw_packed_len(p) * sizeof(double));
-	mu = tmp;
-	fsq = tmp + p;
-	L = ew->Ln;
-	if (!ewcov_state_sane(&h, mu, fsq, L, p))
+	ew->pending = 0; /* Ln is overwritten */
+	if (!ewcov_state_sane(h, ew->sub, ew->sub + p, ew->Ln, p))
 		return QW_ERROR(QW_EFORMAT);
-	memcpy(ew->mu, mu, p * sizeof(double));
-	memcpy(ew->floorsq, fsq, p * sizeof(double));
-	memcpy(ew->L, L, qw_packed_len(p) * sizeof(double));
-	for (size_t j = 0; j < p; j++)
+	return 0;
+}
+
+int qw_ewcov_state_check(qw_ewcov *ew, const void *buf, size_t len)
+{
+	struct ewcov_state_head h;
+
+	return ewcov_state_load(ew, buf, len, &h);
+}
+
+int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len)
+{
+	struct ewcov_state_head h;
+	size_t p = ew->p, j;
+	int rc;
+
+	if ((rc = ewcov_state_load(ew, buf, len, &h)) != 0)
+		return rc;
+	memcpy(ew->mu, ew->sub, p * sizeof(double));
+	memcpy(ew->floorsq, ew->sub + p, p * sizeof(double));
+	memcpy(ew->L, ew->Ln, qw_packed_len(p) * sizeof(double));
+	for (j = 0; j < p; j++)
 		ew->iL[j] = 1.0 / ew->L[qw_packed_col(p, j)];
 	ew->n = h.n;
 	ew->since_topup = (size_t)h.since_topup;
@@ -593,6 +606,5 @@ int qw_ewcov_state_set(qw_ewcov *ew, const void *buf, size_t len)
 	ew->V = h.V;
 	ew->W1 = h.W1;
 	ew->W2 = h.W2;
-	ew->pending = 0;
 	return 0;
 }

@@ -84,6 +84,10 @@ int qw_dyn_state_set(struct qw_dyn *dy, const unsigned char *b);
 double qw_mewma_step(double *z, size_t p, double rho, const double *y,
 		     double ys);
 
+/* ewcov.c: the checks of qw_ewcov_state_set without setting anything (the
+ * pending update is dropped: its scratch is used). */
+int qw_ewcov_state_check(qw_ewcov *ew, const void *buf, size_t len);
+
 /* ewcov.c: multiplies the model's covariance (and floor share) by s > 0. */
 void qw_ewcov_rescale(qw_ewcov *ew, double s);
 

@@ -85,7 +85,17 @@ void free(void *p)
 }
 #endif
 
-static qw_detector *make(size_t p)
+/* The configurations every allocation test runs: plain, whitened with
+ * MEWMA (the most allocations), per-channel whitening. */
+static const struct {
+	enum qw_dynamics dyn;
+	enum qw_mode mode;
+} kinds[] = {{QW_DYN_NONE, QW_MODE_PLAIN},
+	     {QW_DYN_VAR1, QW_MODE_MEWMA},
+	     {QW_DYN_AR1, QW_MODE_PLAIN}};
+#define NKINDS (sizeof kinds / sizeof kinds[0])
+
+static qw_detector *make_kind(size_t p, size_t kind)
 {
 	struct qw_params par;
 
@@ -93,11 +103,19 @@ static qw_detector *make(size_t p)
 	par.half_life = 300;
 	par.rate = 10;
 	par.alarms_per_day = 200; /* some exceedances, to explain them */
+	par.dynamics = kinds[kind].dyn;
+	par.mode = kinds[kind].mode;
 	return qw_detector_alloc(&par);
 }
 
-/* 10^4 readings (complete, partial, outliers, rejected) allocate nothing. */
-static void no_allocation_per_reading(void **st)
+static qw_detector *make(size_t p)
+{
+	return make_kind(p, 0);
+}
+
+/* 10^4 readings (complete, partial, outliers, rejected) allocate nothing,
+ * for configuration kind. */
+static void no_allocation_kind(size_t kind)
 {
 	const size_t p = 8;
 	qw_detector *d;
@@ -106,10 +124,7 @@ static void no_allocation_per_reading(void **st)
 	struct qw_result res;
 	long explained = 0;
 
-	(void)st;
-	if (!COUNTING)
-		skip();
-	d = make(p);
+	d = make_kind(p, kind);
 	rng = gsl_rng_alloc(gsl_rng_mt19937);
 	gsl_rng_set(rng, 5);
 	qwt_mixing(rng, p, A);
@@ -133,26 +148,33 @@ static void no_allocation_per_reading(void **st)
 			qw_detector_rebaseline(d);
 	}
 	counting = 0;
-	print_message("# 10000 readings, %ld explained: %ld allocations\n",
-		      explained, allocs);
+	print_message("# 10000 readings (dynamics %d, mode %d), %ld "
+		      "explained: %ld allocations\n", (int)kinds[kind].dyn,
+		      (int)kinds[kind].mode, explained, allocs);
 	assert_true(explained > 10);
 	assert_int_equal(allocs, 0);
 	qw_detector_free(d);
 	gsl_rng_free(rng);
 }
 
+static void no_allocation_per_reading(void **st)
+{
+	(void)st;
+	if (!COUNTING)
+		skip();
+	for (size_t kind = 0; kind < NKINDS; kind++)
+		no_allocation_kind(kind);
+}
+
 /* Failing each allocation of qw_detector_alloc in turn: NULL, no leak. */
-static void allocation_failure_each_step(void **st)
+static void allocation_failure_kind(size_t kind)
 {
 	long n, total;
 	qw_detector *d;
 
-	(void)st;
-	if (!COUNTING)
-		skip();
 	allocs = live = 0;
 	counting = 1;
-	d = make(5);
+	d = make_kind(5, kind);
 	total = allocs;
 	qw_detector_free(d);
 	assert_int_equal(live, 0);
@@ -160,14 +182,25 @@ static void allocation_failure_each_step(void **st)
 	for (n = 0; n < total; n++) {
 		allocs = live = 0;
 		fail_at = n;
-		d = make(5);
+		d = make_kind(5, kind);
 		assert_null(d);
 		assert_int_equal(live, 0);
 	}
 	counting = 0;
 	fail_at = -1;
-	print_message("# qw_detector_alloc: failure at each of %ld "
-		      "allocations returns NULL and frees the rest\n", total);
+	print_message("# qw_detector_alloc (dynamics %d, mode %d): failure "
+		      "at each of %ld allocations returns NULL and frees the "
+		      "rest\n", (int)kinds[kind].dyn, (int)kinds[kind].mode,
+		      total);
+}
+
+static void allocation_failure_each_step(void **st)
+{
+	(void)st;
+	if (!COUNTING)
+		skip();
+	for (size_t kind = 0; kind < NKINDS; kind++)
+		allocation_failure_kind(kind);
 	qw_detector_free(NULL); /* a no-op */
 	qw_ewcov_free(NULL);
 }
@@ -277,6 +310,28 @@ static void params_errors(void **st)
 	assert_int_equal(qw_params_check(&par), QW_EINVAL);
 	qw_params_default(&par, 2);
 	par.clear_n = 0;
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, 2);
+	par.mode = QW_MODE_MEWMA;
+	assert_int_equal(qw_params_check(&par), 0);
+	par.persist_k = 2;
+	par.persist_m = 3; /* MEWMA's limit is for 1-of-1 raises */
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, 2);
+	par.mode = QW_MODE_MEWMA;
+	par.smoothing = 0;
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, 2);
+	par.dynamics = (enum qw_dynamics)7;
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, 2);
+	par.limit_factor = 0;
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, 2);
+	par.max_gap = -1;
+	assert_int_equal(qw_params_check(&par), QW_EINVAL);
+	qw_params_default(&par, QW_MAX_P / 2 + 1);
+	par.dynamics = QW_DYN_VAR1; /* twice the channels in the model */
 	assert_int_equal(qw_params_check(&par), QW_EINVAL);
 	assert_null(qw_detector_alloc(NULL));
 }

@@ -91,10 +91,11 @@ static double mewma_integrand(double t, void *vp)
 	       mewma_ncx2_q(a->h / s, a->k, one * one * av / s);
 }
 
-double qw_mewma_uprate(double h, unsigned dof, double rho)
+/* u(h) with the quadrature's workspace ws (NULL: rho = 1 only). */
+static double mewma_uprate_ws(double h, unsigned dof, double rho,
+			      gsl_integration_workspace *ws)
 {
 	struct mewma_arg arg = {h, (double)dof, rho};
-	gsl_integration_workspace *ws;
 	gsl_function fn = {mewma_integrand, &arg};
 	double res = NAN, err;
 
@@ -104,15 +105,22 @@ double qw_mewma_uprate(double h, unsigned dof, double rho)
 		double a = gsl_cdf_chisq_Q(h, (double)dof);
 		return (1.0 - a) * a;
 	}
-	ws = gsl_integration_workspace_alloc(MEWMA_QUAD_INTERVALS);
-	if (ws == NULL)
-		return NAN;
-	if (gsl_integration_qag(&fn, 0.0, 1.0, 0.0, MEWMA_QUAD_RTOL,
+	if (ws == NULL ||
+	    gsl_integration_qag(&fn, 0.0, 1.0, 0.0, MEWMA_QUAD_RTOL,
 				MEWMA_QUAD_INTERVALS, GSL_INTEG_GAUSS31, ws,
 				&res, &err) != 0)
-		res = NAN;
-	gsl_integration_workspace_free(ws);
+		return NAN;
 	return res;
+}
+
+double qw_mewma_uprate(double h, unsigned dof, double rho)
+{
+	gsl_integration_workspace *ws =
+		gsl_integration_workspace_alloc(MEWMA_QUAD_INTERVALS);
+	double u = mewma_uprate_ws(h, dof, rho, ws);
+
+	gsl_integration_workspace_free(ws);
+	return u;
 }
 
 double qw_mewma_step(double *z, size_t p, double rho, const double *y,
@@ -128,26 +136,26 @@ double qw_mewma_step(double *z, size_t p, double rho, const double *y,
 	return t2 * (2.0 - rho) / rho;
 }
 
-double qw_mewma_limit(double rate, unsigned dof, double rho)
+/* The bisection of qw_mewma_limit with the quadrature's workspace. */
+static double mewma_limit_ws(double rate, unsigned dof, double rho,
+			     gsl_integration_workspace *ws)
 {
 	double hi, lo, mid, u;
 	int i;
 
-	if (!(rate > 0 && rate < 0.5) || dof < 1 || !(rho > 0 && rho <= 1))
-		return NAN;
 	/* T2_t ~ chi-square(dof) in steady state and u(h) <= P(T2_t > h),
 	 * so the root lies below the chi-square point of rate; u rises from
 	 * 0 at h = 0 to a maximum near the mean dof, then falls. */
 	hi = gsl_cdf_chisq_Qinv(rate, (double)dof);
 	lo = (double)dof;
-	u = qw_mewma_uprate(lo, dof, rho);
+	u = mewma_uprate_ws(lo, dof, rho, ws);
 	if (!(u > rate) || !(hi > lo))
 		return NAN;
 	for (i = 0; i < MEWMA_BISECT_STEPS && hi - lo > MEWMA_BISECT_RTOL * hi;
 	     i++) {
 		mid = 0.5 * (lo + hi);
-		u = qw_mewma_uprate(mid, dof, rho);
-		if (!(u == u))
+		u = mewma_uprate_ws(mid, dof, rho, ws);
+		if (isnan(u))
 			return NAN;
 		if (u > rate)
 			lo = mid;
@@ -155,4 +163,17 @@ double qw_mewma_limit(double rate, unsigned dof, double rho)
 			hi = mid;
 	}
 	return 0.5 * (lo + hi);
+}
+
+double qw_mewma_limit(double rate, unsigned dof, double rho)
+{
+	gsl_integration_workspace *ws;
+	double h;
+
+	if (!(rate > 0 && rate < 0.5) || dof < 1 || !(rho > 0 && rho <= 1))
+		return NAN;
+	ws = gsl_integration_workspace_alloc(MEWMA_QUAD_INTERVALS);
+	h = ws != NULL || rho == 1.0 ? mewma_limit_ws(rate, dof, rho, ws) : NAN;
+	gsl_integration_workspace_free(ws);
+	return h;
 }

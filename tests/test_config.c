@@ -484,8 +484,8 @@ static void test_error_limits(void **state)
 					"[group g%zu]\nchannels = x\n", i);
 	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
 					       sizeof err), QW_EFORMAT);
-	assert_string_equal(err, "t.ini:513: [group g256]: expected at most "
-				 "256 groups");
+	assert_string_equal(err, "t.ini:2049: [group g1024]: expected at most "
+				 "1024 groups");
 	off = (size_t)snprintf(t, cap, "[group a]\nchannels = c0");
 	for (i = 1; i <= QW_MAX_P; i++)
 		off += (size_t)snprintf(t + off, cap - off, "%s c%zu",

@@ -11,8 +11,13 @@ rate, first to last frame), then a fresh daemon (one group, p channels)
 whose rate comes from its status counters polled every POLL s (readings
 over the span in which they grew).  Prints each run and the medians.
 
+With --groups G > 1 the daemon has G groups of p channels (bench000,
+bench001, ...) and the publisher sends its frames to them in turn, each
+topic with its own seq: the per-daemon capacity of a sharded plant
+(docs/operations.md "Sharding a plant").
+
 usage: BUILD=build tools/bench_bus.py [--runs N] [--readings N] [--p P]
-       [--batch B]"""
+       [--batch B] [--groups G]"""
 import argparse
 import json
 import os
@@ -58,7 +63,7 @@ def status(ctx, endpoint):
 def drain_phase(args):
     ep = "tcp://127.0.0.1:%d" % free_port()
     pub = subprocess.Popen([PUB, "@" + ep, str(args.p), str(args.batch),
-                            str(args.readings), "1"],
+                            str(args.readings), "1", str(args.groups)],
                            stdout=subprocess.PIPE, text=True)
     try:
         out = subprocess.run([DRAIN, ">" + ep, str(args.batch), str(IDLE_MS)],
@@ -73,28 +78,36 @@ def drain_phase(args):
 def daemon_phase(ctx, tmp, args):
     ep = "tcp://127.0.0.1:%d" % free_port()
     chans = ", ".join("c%02d" % i for i in range(args.p))
+    names = ["bench"] if args.groups == 1 else \
+        ["bench%03d" % g for g in range(args.groups)]
     path = os.path.join(tmp, "bench.ini")
     with open(path, "w") as f:
         f.write("[bus]\ninput = >%s\nalerts = @ipc://%s/alerts\n"
-                "control = @ipc://%s/control\nstats_every = 1s\n\n"
-                "[group bench]\nchannels = %s\nhalf_life = 2000\n"
-                "rate = 1000\nalarms_per_day = 1\n" % (ep, tmp, tmp, chans))
+                "control = @ipc://%s/control\nstats_every = 1s\n"
+                % (ep, tmp, tmp))
+        for name in names:
+            f.write("\n[group %s]\nchannels = %s\nhalf_life = 2000\n"
+                    "rate = 1000\nalarms_per_day = 1\n" % (name, chans))
     control = "ipc://%s/control" % tmp
     daemon = subprocess.Popen([QW, "run", "-q", "-c", path])
     pub = None
     try:
         pub = subprocess.Popen([PUB, "@" + ep, str(args.p), str(args.batch),
-                                str(args.readings), "1"],
+                                str(args.readings), str(len(names)),
+                                str(args.groups)],
                                stdout=subprocess.PIPE, text=True)
-        seen, t_first, t_last, n_first = 0, None, None, 0
+        seen, t_first, t_last, n_first, last = 0, None, None, 0, {}
+        samples = []
         end = time.monotonic() + 120
         while time.monotonic() < end:
             try:
-                n = status(ctx, control)["readings"]
+                last = status(ctx, control)
+                n = last["readings"]
             except (RuntimeError, zmq.ZMQError):
                 time.sleep(POLL)
                 continue
             now = time.monotonic()
+            samples.append((now, n))
             if n > 0 and t_first is None:
                 t_first, n_first = now, n
             if n != seen:
@@ -109,7 +122,14 @@ def daemon_phase(ctx, tmp, args):
         daemon.terminate()
         daemon.wait(timeout=5)
     rate = (seen - n_first) / (t_last - t_first) if t_last and t_last > t_first else 0.0
-    return rate, seen
+    bad = last.get("gaps", 0) + sum(last.get("rejected", {}).values())
+    # the second half of the readings: past every group's start, when the
+    # limit is recomputed nearly every reading while nu grows (see
+    # docs/operations.md "Sharding a plant")
+    half = [(t, n) for t, n in samples if n >= seen / 2 and t <= t_last]
+    late = (seen - half[0][1]) / (t_last - half[0][0]) \
+        if half and t_last > half[0][0] else 0.0
+    return rate, seen, bad, late
 
 
 def main():
@@ -118,27 +138,33 @@ def main():
     ap.add_argument("--readings", type=int, default=3000000)
     ap.add_argument("--p", type=int, default=16)
     ap.add_argument("--batch", type=int, default=64)
+    ap.add_argument("--groups", type=int, default=1)
     args = ap.parse_args()
     for exe in (QW, PUB, DRAIN):
         if not os.access(exe, os.X_OK):
             sys.exit("bench_bus: %s not built (make bench)" % exe)
     ctx = zmq.Context.instance()
-    d_rates, b_rates = [], []
-    print("bus: p=%d, batches of %d, %d readings per run, tcp loopback" %
-          (args.p, args.batch, args.readings))
+    d_rates, b_rates, l_rates = [], [], []
+    print("bus: p=%d, %d group%s, batches of %d, %d readings per run, "
+          "tcp loopback" % (args.p, args.groups, "" if args.groups == 1
+                            else "s", args.batch, args.readings))
     for i in range(args.runs):
         tmp = tempfile.mkdtemp(prefix="qwbench.")
         try:
             b, bn = drain_phase(args)
-            d, dn = daemon_phase(ctx, tmp, args)
+            d, dn, bad, late = daemon_phase(ctx, tmp, args)
         finally:
             shutil.rmtree(tmp, ignore_errors=True)
         d_rates.append(d)
         b_rates.append(b)
-        print("  run %d: daemon %.3g readings/s (%d taken), bare drain "
-              "%.3g readings/s (%d)" % (i + 1, d, dn, b, bn))
+        l_rates.append(late)
+        print("  run %d: daemon %.3g readings/s (%d taken, %d gaps or "
+              "rejections; second half %.3g/s), bare drain %.3g "
+              "readings/s (%d)" % (i + 1, d, dn, bad, late, b, bn))
     dm, bm = statistics.median(d_rates), statistics.median(b_rates)
     print("daemon  %.3g readings/s (median of %d)" % (dm, args.runs))
+    print("daemon, second half of the readings  %.3g readings/s (median)"
+          % statistics.median(l_rates))
     print("drain   %.3g readings/s (median of %d)" % (bm, args.runs))
     print("ratio   %.0f%% of the bare drain" % (100.0 * dm / bm if bm else 0))
 

@@ -37,6 +37,9 @@ QW = os.path.join(ROOT, BUILD, "quadwatch")
 PUB = os.path.join(ROOT, BUILD, "tools", "bench_pub")
 DRAIN = os.path.join(ROOT, BUILD, "tools", "bench_drain")
 POLL = 0.005   # s between status polls of the daemon
+POLL_GROUPS = 0.5  # s between polls with many groups: a status costs the
+                   # daemon ~32 us of CPU per group (8 ms at 256 groups),
+                   # so polling at POLL would throttle what it measures
 IDLE_MS = 1000  # ms without frames that ends a measurement
 
 
@@ -46,6 +49,15 @@ def free_port():
     port = s.getsockname()[1]
     s.close()
     return port
+
+
+def cpu_seconds(pid):
+    """User + system CPU time of a process, all its threads (libzmq's I/O
+    thread too), from /proc/PID/stat; less sensitive than wall time to
+    other work on a shared machine."""
+    with open("/proc/%d/stat" % pid) as f:
+        fields = f.read().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
 
 
 def status(ctx, endpoint):
@@ -96,6 +108,7 @@ def daemon_phase(ctx, tmp, args):
                                 str(args.readings), str(len(names)),
                                 str(args.groups)],
                                stdout=subprocess.PIPE, text=True)
+        poll = POLL if args.groups == 1 else POLL_GROUPS
         seen, t_first, t_last, n_first, last = 0, None, None, 0, {}
         samples = []
         end = time.monotonic() + 120
@@ -104,17 +117,17 @@ def daemon_phase(ctx, tmp, args):
                 last = status(ctx, control)
                 n = last["readings"]
             except (RuntimeError, zmq.ZMQError):
-                time.sleep(POLL)
+                time.sleep(poll)
                 continue
             now = time.monotonic()
-            samples.append((now, n))
+            samples.append((now, n, cpu_seconds(daemon.pid)))
             if n > 0 and t_first is None:
                 t_first, n_first = now, n
             if n != seen:
                 seen, t_last = n, now
             elif t_last is not None and now - t_last > IDLE_MS / 1e3:
                 break
-            time.sleep(POLL)
+            time.sleep(poll)
         pub.communicate(timeout=60)
     finally:
         if pub is not None and pub.poll() is None:
@@ -126,10 +139,17 @@ def daemon_phase(ctx, tmp, args):
     # the second half of the readings: past every group's start, when the
     # limit is recomputed nearly every reading while nu grows (see
     # docs/operations.md "Sharding a plant")
-    half = [(t, n) for t, n in samples if n >= seen / 2 and t <= t_last]
+    half = [(t, n, c) for t, n, c in samples if n >= seen / 2 and t <= t_last]
     late = (seen - half[0][1]) / (t_last - half[0][0]) \
         if half and t_last > half[0][0] else 0.0
-    return rate, seen, bad, late
+    # per CPU-second of the daemon over the same span
+    end = [c for t, n, c in samples if t <= t_last][-1] if half else 0.0
+    cpu = (seen - half[0][1]) / (end - half[0][2]) \
+        if half and end > half[0][2] else 0.0
+    first = [(n, c) for t, n, c in samples if n > 0]
+    early = (half[0][1] - first[0][0]) / (half[0][2] - first[0][1]) \
+        if half and first and half[0][2] > first[0][1] else 0.0
+    return rate, seen, bad, late, cpu, early
 
 
 def main():
@@ -144,7 +164,7 @@ def main():
         if not os.access(exe, os.X_OK):
             sys.exit("bench_bus: %s not built (make bench)" % exe)
     ctx = zmq.Context.instance()
-    d_rates, b_rates, l_rates = [], [], []
+    d_rates, b_rates, l_rates, c_rates = [], [], [], []
     print("bus: p=%d, %d group%s, batches of %d, %d readings per run, "
           "tcp loopback" % (args.p, args.groups, "" if args.groups == 1
                             else "s", args.batch, args.readings))
@@ -152,19 +172,23 @@ def main():
         tmp = tempfile.mkdtemp(prefix="qwbench.")
         try:
             b, bn = drain_phase(args)
-            d, dn, bad, late = daemon_phase(ctx, tmp, args)
+            d, dn, bad, late, cpu, early = daemon_phase(ctx, tmp, args)
         finally:
             shutil.rmtree(tmp, ignore_errors=True)
         d_rates.append(d)
         b_rates.append(b)
         l_rates.append(late)
+        c_rates.append(cpu)
         print("  run %d: daemon %.3g readings/s (%d taken, %d gaps or "
-              "rejections; second half %.3g/s), bare drain %.3g "
-              "readings/s (%d)" % (i + 1, d, dn, bad, late, b, bn))
+              "rejections; second half %.3g/s, %.3g per CPU-second; "
+              "first half %.3g per CPU-second), bare drain %.3g "
+              "readings/s (%d)" % (i + 1, d, dn, bad, late, cpu, early, b,
+                                   bn))
     dm, bm = statistics.median(d_rates), statistics.median(b_rates)
     print("daemon  %.3g readings/s (median of %d)" % (dm, args.runs))
-    print("daemon, second half of the readings  %.3g readings/s (median)"
-          % statistics.median(l_rates))
+    print("daemon, second half of the readings  %.3g readings/s, %.3g per "
+          "daemon CPU-second (medians)" % (statistics.median(l_rates),
+                                           statistics.median(c_rates)))
     print("drain   %.3g readings/s (median of %d)" % (bm, args.runs))
     print("ratio   %.0f%% of the bare drain" % (100.0 * dm / bm if bm else 0))
 

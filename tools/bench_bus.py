@@ -111,7 +111,7 @@ def daemon_phase(ctx, tmp, args):
         poll = POLL if args.groups == 1 else POLL_GROUPS
         seen, t_first, t_last, n_first, last = 0, None, None, 0, {}
         samples = []
-        end = time.monotonic() + 120
+        end = time.monotonic() + max(120.0, args.readings / 1e5)  # s
         while time.monotonic() < end:
             try:
                 last = status(ctx, control)

@@ -143,7 +143,7 @@ int cfg_owned_apply(struct cfg_parse *ps)
 				"out of memory");
 	rc = shard_mark(ps, list, keep);
 	for (i = 0; rc == 0 && i < c->ngroups; i++) {
-		if (!keep[i]) {
+		if (!keep[i]) { /* what qw_config_free frees of a group */
 			free(c->groups[i].channels);
 			free(c->groups[i].floor);
 			continue;

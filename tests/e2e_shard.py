@@ -17,8 +17,9 @@ rejections, received = its own groups' messages); every alert every daemon
 sent arrives exactly once at the watcher (pyzmq) and at an authenticated
 `quadwatch tail`, each group raising on its fault; a subscriber in the
 clear and one with a key not in the relay's list get nothing at all, and
-the relay logs the refusal; `check` shows each daemon's owned groups; a
-selection naming no group, and bad relay options, exit 2."""
+the relay logs the refusal; a reload that drops a group from [bus] groups
+unsubscribes it; `check` shows each daemon's owned groups; a selection
+naming no group, and bad relay options, exit 2."""
 import json
 import os
 import re
@@ -328,6 +329,23 @@ try:
     q.check(m is not None and int(m.group(1)) >= 2 and int(m.group(2)) >= 1
             and "key not in client_keys" in log, "relay log: %r" % log)
     q.note("relay: subscribers %s let in, %s refused" % m.groups())
+    # a reload follows a changed [bus] groups: b gives up tower
+    b = daemons["b"]
+    with open(b.path) as f:
+        text = f.read()
+    b.write(text.replace("groups = pump_skid, tower", "groups = pump_skid"))
+    b.proc.send_signal(signal.SIGHUP)
+    end = time.monotonic() + q.WAIT
+    while sorted(b.status()["groups"]) != ["pump_skid"] and \
+            time.monotonic() < end:
+        time.sleep(0.05)
+    q.check(sorted(b.status()["groups"]) == ["pump_skid"],
+            "after reload b owns %r" % sorted(b.status()["groups"]))
+    unsub = False
+    end = time.monotonic() + q.WAIT
+    while not unsub and time.monotonic() < end:
+        unsub = pub.sock.poll(100) and pub.sock.recv() == b"\x00tower"
+    q.check(unsub, "no unsubscription from tower after the reload")
     for d in daemons.values():
         rc, _ = d.stop()
         q.check(rc == 0, "daemon exit %d" % rc)

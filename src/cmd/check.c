@@ -1,6 +1,7 @@
-/* check.c: `quadwatch check -c FILE [-g GROUPS]`: validates a configuration and prints
- * what it implies, without touching the bus (as ntpd -n does).  For each
- * group it builds the real detector (qw_detector_alloc) and prints the
+/* check.c: `quadwatch check -c FILE [-g GROUPS]`: validates a
+ * configuration and prints what it implies for the groups a daemon would
+ * own (-g, else [bus] groups, else all), without touching the bus (as
+ * ntpd -n does).  For each group it builds the real detector (qw_detector_alloc) and prints the
  * per-reading alpha solved from alarms_per_day, rate and persist, the plain
  * chi-square limit and the finite-sample corrected limit at full effective
  * size.  Output is one "key: value [unit]" line per fact, a blank line and

@@ -181,16 +181,19 @@ static void relay_zap_serve(struct relay_zap *z)
 		qw_auth_zap(z->allowed, &req, &rep, &v);
 		if (v.allowed) {
 			z->let_in++;
-			qw_log(QW_LOG_DEBUG, "subscriber %s (%s) from %s let in",
-			       v.key, v.name != NULL ? v.name : "-", v.address);
+			qw_log(QW_LOG_DEBUG, "subscriber %s (%s) from %s "
+			       "let in", v.key, v.name != NULL ? v.name : "-",
+			       v.address);
 		} else {
 			z->refused++;
-			qw_log_limited(&z->log, QW_LOG_WARN, "subscriber %s from "
-				       "%s refused: %s", v.key[0] ? v.key : "-",
-				       v.address, v.why);
+			qw_log_limited(&z->log, QW_LOG_WARN, "subscriber %s "
+				       "from %s refused: %s",
+				       v.key[0] ? v.key : "-", v.address,
+				       v.why);
 		}
 		if (qw_bus_send_parts(z->rep, &rep, 1) != 0)
-			qw_log(QW_LOG_ERROR, "ZAP reply: %s", qw_bus_strerror());
+			qw_log(QW_LOG_ERROR, "ZAP reply: %s",
+			       qw_bus_strerror());
 	}
 }
 

@@ -110,9 +110,9 @@ static int shard_mark(struct cfg_parse *ps, const char *list,
 				break;
 		if (i == c->ngroups) {
 			shard_names(c, names, sizeof names);
-			return shard_fail(ps, "expected names of [group NAME] "
-					      "sections of this file; '%.*s' is "
-					      "not one (groups: %s)",
+			return shard_fail(ps, "expected names of [group "
+					      "NAME] sections of this file; "
+					      "'%.*s' is not one (groups: %s)",
 					  (int)(len < QW_CONFIG_NAME_MAX
 						? len : QW_CONFIG_NAME_MAX),
 					  item, names);

@@ -301,34 +301,6 @@ static int relay_front(qw_bus *bus, const struct relay_opts *o,
 	return rc;
 }
 
-/* The XPUB on BACKEND; with --client-keys a CURVE server whose ZAP
- * handler (started here, before the socket binds: without one libzmq lets
- * every client in) checks the allow-list. */
-static int relay_back(qw_bus *bus, const struct relay_opts *o,
-		      struct relay_zap *z, qw_auth **allowed, pthread_t *th,
-		      int *started, qw_bus_sock **s)
-{
-	struct qw_bus_curve curve;
-	char err[QW_AUTH_ERR_MAX];
-	int rc;
-
-	if (o->client_keys == NULL)
-		return relay_open(bus, QW_BUS_XPUB, &o->back, NULL, s);
-	if (qw_auth_endpoint(o->key, NULL, 1, &curve, err, sizeof err) != 0 ||
-	    qw_auth_load(o->client_keys, allowed, err, sizeof err) != 0) {
-		qw_log(QW_LOG_ERROR, "relay @%s: %s", o->back.addr, err);
-		explicit_bzero(&curve, sizeof curve);
-		return QW_EXIT_USAGE;
-	}
-	z->allowed = *allowed;
-	rc = relay_zap_start(bus, z, th);
-	*started = rc == 0;
-	if (rc == 0)
-		rc = relay_open(bus, QW_BUS_XPUB, &o->back, &curve, s);
-	explicit_bzero(&curve, sizeof curve);
-	return rc;
-}
-
 static void relay_report(const struct relay_opts *o, const qw_auth *allowed)
 {
 	qw_log(QW_LOG_INFO, "relaying %zu frontend endpoint%s (%s) to %s (%s)",
@@ -345,6 +317,39 @@ static void relay_report(const struct relay_opts *o, const qw_auth *allowed)
 		       o->back.addr + 6);
 }
 
+/* The XPUB on BACKEND; with --client-keys a CURVE server whose ZAP
+ * handler (started here, before the socket binds: without one libzmq lets
+ * every client in) checks the allow-list.  The start is logged first:
+ * once the ZAP thread runs, the main thread logs nothing until it has
+ * joined it, since log.c writes a line in several calls. */
+static int relay_back(qw_bus *bus, const struct relay_opts *o,
+		      struct relay_zap *z, qw_auth **allowed, pthread_t *th,
+		      int *started, qw_bus_sock **s)
+{
+	struct qw_bus_curve curve;
+	char err[QW_AUTH_ERR_MAX];
+	int rc;
+
+	if (o->client_keys == NULL) {
+		relay_report(o, NULL);
+		return relay_open(bus, QW_BUS_XPUB, &o->back, NULL, s);
+	}
+	if (qw_auth_endpoint(o->key, NULL, 1, &curve, err, sizeof err) != 0 ||
+	    qw_auth_load(o->client_keys, allowed, err, sizeof err) != 0) {
+		qw_log(QW_LOG_ERROR, "relay @%s: %s", o->back.addr, err);
+		explicit_bzero(&curve, sizeof curve);
+		return QW_EXIT_USAGE;
+	}
+	relay_report(o, *allowed);
+	z->allowed = *allowed;
+	rc = relay_zap_start(bus, z, th);
+	*started = rc == 0;
+	if (rc == 0)
+		rc = relay_open(bus, QW_BUS_XPUB, &o->back, &curve, s);
+	explicit_bzero(&curve, sizeof curve);
+	return rc;
+}
+
 int qw_cmd_relay(int argc, char **argv)
 {
 	struct relay_opts o;
@@ -354,7 +359,7 @@ int qw_cmd_relay(int argc, char **argv)
 	qw_bus_sock *front = NULL, *back = NULL;
 	qw_auth *allowed = NULL;
 	pthread_t th;
-	int rc, started = 0;
+	int rc, started = 0, proxy_failed = 0;
 
 	if ((rc = relay_args(argc, argv, &o)) != 0)
 		return rc;
@@ -371,19 +376,17 @@ int qw_cmd_relay(int argc, char **argv)
 	rc = relay_front(bus, &o, &front);
 	if (rc == 0)
 		rc = relay_back(bus, &o, &z, &allowed, &th, &started, &back);
-	if (rc == 0) {
-		relay_report(&o, allowed);
-		while (!relay_stop && rc == 0)
-			if (qw_bus_proxy(front, back) < 0) {
-				qw_log(QW_LOG_ERROR, "proxy: %s",
-				       qw_bus_strerror());
-				rc = QW_EXIT_FAIL;
-			}
-	}
+	while (rc == 0 && !relay_stop)
+		if (qw_bus_proxy(front, back) < 0) {
+			proxy_failed = 1;
+			rc = QW_EXIT_FAIL;
+		}
 	if (started) {
 		atomic_store(&z.stop, 1);
 		pthread_join(th, NULL);
 	}
+	if (proxy_failed) /* errno is this thread's: still the proxy's */
+		qw_log(QW_LOG_ERROR, "proxy: %s", qw_bus_strerror());
 	if (rc == 0)
 		qw_log(QW_LOG_INFO, "relay stopping");
 	if (allowed != NULL)

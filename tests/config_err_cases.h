@@ -148,6 +148,21 @@ static const struct err_case err_cases[] = {
 	 "an endpoint such as @tcp://127.0.0.1:5602 or >ipc:///run/qw (no "
 	 "blanks"},
 	{"[bus]\ncontrol = 5603\n" G, "t.ini:2: [bus] control: expected an"},
+	/* [bus] groups: the groups this daemon owns (config_shard.c) */
+	{"[bus]\ngroups = a, zz\n" G, "t.ini:2: [bus] groups: expected names "
+	 "of [group NAME] sections of this file; 'zz' is not one (groups: a)"},
+	{"[bus]\ngroups = a,\n  zz\n" G, "t.ini:2: [bus] groups: expected "
+	 "names of [group NAME] sections of this file; 'zz' is not one"},
+	{G "[bus]\ngroups = A\n", "t.ini:4: [bus] groups: expected names of "
+	 "[group NAME] sections of this file; 'A' is not one"},
+	{"[bus]\ngroups = a, a\n" G, "t.ini:2: [bus] groups: expected each "
+	 "group once; 'a' is listed twice"},
+	{"[bus]\ngroups =\n" G, "t.ini:2: [bus] groups: expected a "
+	 "comma-separated list of group names"},
+	{"[bus]\ngroups = a,,\n" G, "t.ini:2: [bus] groups: expected a group "
+	 "name, got an empty item (item 2)"},
+	{"[bus]\ngroups = a\ngroups = a\n" G, "t.ini:3: [bus] groups: "
+	 "expected each key once per section; first set on line 2"},
 	{"[bus]\nmax_frame = 10\n" G, "t.ini:2: [bus] max_frame: expected a "
 	 "size in bytes from 64 to 1073741824"},
 	{"[bus]\nmax_frame = 2048MiB\n" G, "t.ini:2: [bus] max_frame: "

@@ -220,9 +220,10 @@ def send_stream(pub, topic, t, x, fmt, batch=64, seq0=0):
 
 
 class Daemon:
-    """`quadwatch run -c FILE` in the background, stderr to a log file."""
+    """`quadwatch run -c FILE [args]` in the background, stderr to a log
+    file."""
 
-    def __init__(self, tmp, config_text, name="qw"):
+    def __init__(self, tmp, config_text, name="qw", args=()):
         self.tmp = tmp
         self.path = os.path.join(tmp, name + ".ini")
         self.log = os.path.join(tmp, name + ".log")
@@ -230,7 +231,7 @@ class Daemon:
         self.alerts = "ipc://%s/alerts" % tmp
         self.vglog = os.path.join(tmp, name + ".valgrind")
         self.write(config_text)
-        cmd = [QW, "run", "-c", self.path]
+        cmd = [QW, "run", "-c", self.path] + list(args)
         if VALGRIND:
             cmd = ["valgrind", "--quiet", "--leak-check=full",
                    "--show-leak-kinds=definite,indirect",

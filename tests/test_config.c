@@ -5,7 +5,9 @@
  * - Every error path, table-driven: the message must begin with the exact
  *   "FILE:LINE: [section] key: " and the config must come back empty.
  * - Defaults, duration units, endpoints (@ binds, > connects), list
- *   continuation, floors, the fingerprint (against an independent FNV-1a). */
+ *   continuation, floors, the fingerprint (against an independent FNV-1a).
+ * - The groups owned ([bus] groups, or -g through qw_config_load_owned):
+ *   the others dropped, the kept ones whole and in file order. */
 #include <stdarg.h>
 #include <stddef.h>
 #include <setjmp.h>
@@ -482,8 +484,8 @@ static void test_error_limits(void **state)
 					"[group g%zu]\nchannels = x\n", i);
 	assert_int_equal(qw_config_load_string(t, "t.ini", &c, err,
 					       sizeof err), QW_EFORMAT);
-	assert_string_equal(err, "t.ini:513: [group g256]: expected at most "
-				 "256 groups");
+	assert_string_equal(err, "t.ini:2049: [group g1024]: expected at most "
+				 "1024 groups");
 	off = (size_t)snprintf(t, cap, "[group a]\nchannels = c0");
 	for (i = 1; i <= QW_MAX_P; i++)
 		off += (size_t)snprintf(t + off, cap - off, "%s c%zu",
@@ -563,6 +565,90 @@ static void test_file_errors(void **state)
 	assert_int_equal(err[12], 'Z');
 }
 
+/* [bus] groups and -g: a daemon owns only the groups named. */
+static const char shard_text[] =
+	"[bus]\n"
+	"groups = c,\n"
+	"  a\n"
+	"[group a]\nchannels = x\n"
+	"[group b]\nchannels = y, z\n"
+	"[group c]\nchannels = u, v, w\nfloor = 2.385, 0, 0.5\n";
+
+static void test_owned(void **state)
+{
+	char err[QW_CONFIG_ERR_MAX], want[QW_CONFIG_ERR_MAX];
+	struct qw_config c;
+	char *name = temp_file(shard_text, strlen(shard_text));
+
+	(void)state;
+	load_ok(shard_text, &c);
+	assert_int_equal(c.ngroups, 2);       /* file order, not list order */
+	assert_string_equal(c.groups[0].name, "a");
+	assert_string_equal(c.groups[1].name, "c");
+	assert_int_equal(c.ngroups_file, 3);
+	assert_int_equal(c.groups_line, 2);
+	assert_int_equal(c.groups_cli, 0);
+	assert_int_equal(c.groups[1].p, 3);
+	assert_string_equal(c.groups[1].channels[2], "w");
+	assert_ptr_equal(c.groups[1].params.floor, c.groups[1].floor);
+	assert_true(c.groups[1].floor[0] == 2.385);
+	assert_non_null(qw_config_group(&c, "c"));
+	assert_null(qw_config_group(&c, "b"));
+	qw_config_free(&c);
+	/* -g replaces the file's list */
+	assert_int_equal(qw_config_load_owned(name, "b", &c, err, sizeof err),
+			 0);
+	assert_int_equal(c.ngroups, 1);
+	assert_string_equal(c.groups[0].name, "b");
+	assert_int_equal(c.ngroups_file, 3);
+	assert_int_equal(c.groups_line, 0);
+	assert_int_equal(c.groups_cli, 1);
+	qw_config_free(&c);
+	assert_int_equal(qw_config_load_owned(name, "b,q", &c, err,
+					      sizeof err), QW_EFORMAT);
+	snprintf(want, sizeof want, "%s: -g: expected names of [group NAME] "
+		 "sections of this file; 'q' is not one (groups: a, b, c)",
+		 name);
+	assert_string_equal(err, want);
+	assert_null(c.groups);
+	assert_int_equal(qw_config_load_owned(name, " ", &c, err, sizeof err),
+			 QW_EFORMAT);
+	assert_non_null(strstr(err, ": -g: expected a comma-separated list"));
+	/* no selection: every group, ngroups_file == ngroups */
+	load_ok("[group a]\nchannels = x\n[group b]\nchannels = y\n", &c);
+	assert_int_equal(c.ngroups, 2);
+	assert_int_equal(c.ngroups_file, 2);
+	assert_int_equal(c.groups_line, 0);
+	qw_config_free(&c);
+#ifdef TEST_ALLOC_FAIL
+	{
+		long n, live, left;
+		int rc;
+
+		for (n = 0;; n++) {
+			live = alloc_live;
+			alloc_countdown = n;
+			rc = qw_config_load_owned(name, "c", &c, err,
+						  sizeof err);
+			left = alloc_countdown;
+			alloc_countdown = -1;
+			if (rc == 0)
+				assert_int_equal(c.ngroups, 1);
+			else if (rc != QW_ENOMEM || c.groups != NULL)
+				fail_msg("allocation %ld failing: rc %d, %s",
+					 n, rc, err);
+			qw_config_free(&c);
+			if (alloc_live != live)
+				fail_msg("allocation %ld failing: %ld blocks "
+					 "leaked", n, alloc_live - live);
+			if (left >= 0)
+				break;
+		}
+	}
+#endif
+	unlink(name);
+}
+
 #ifdef TEST_ALLOC_FAIL
 /* Every allocation of a load fails in turn: QW_ENOMEM with "out of memory"
  * (or, for the parts that degrade, a clean result), nothing leaked. */
@@ -621,6 +707,7 @@ int main(void)
 		cmocka_unit_test(test_error_limits),
 		cmocka_unit_test(test_max_channels),
 		cmocka_unit_test(test_file_errors),
+		cmocka_unit_test(test_owned),
 #ifdef TEST_ALLOC_FAIL
 		cmocka_unit_test(test_alloc_failure),
 #endif

@@ -1,10 +1,12 @@
 /* bench_pub.c: the publisher of the bus benchmark (tools/bench_bus.py).
  *
- *   bench_pub ENDPOINT P BATCH READINGS SUBSCRIBERS
+ *   bench_pub ENDPOINT P BATCH READINGS SUBSCRIBERS [GROUPS]
  *
  * Binds an XPUB socket on ENDPOINT, waits until SUBSCRIBERS distinct
  * subscriptions have arrived, then sends READINGS readings of P channels
- * on topic "bench" as binary frames of BATCH readings, as fast as the
+ * on topic "bench" (or, with GROUPS > 1, round robin over the topics
+ * "bench000", "bench001", ..., one frame each in turn, each topic with
+ * its own seq) as binary frames of BATCH readings, as fast as the
  * slowest subscriber takes them (ZMQ_XPUB_NODROP: nothing is dropped, a
  * full queue makes the send wait).  Frames are encoded once (a pool of BENCH_POOL frames of
  * Gaussian data with a fixed seed); only the seq field changes per frame,
@@ -28,6 +30,9 @@
 #define BENCH_SETTLE_S 0.3     /* s after the last subscription, so every
 				  connection is up before the clock starts */
 #define BENCH_WAIT_MS 30000    /* ms: longest wait for subscribers */
+#define BENCH_GROUPS_MAX 1000  /* topics: "bench%03u" stays 8 bytes */
+#define BENCH_SUBS_MAX 4096    /* subscriptions waited for: a daemon
+				  sends one per group */
 
 /* Standard normal by Box-Muller from a 64-bit LCG (Knuth's MMIX
  * constants): fixed, portable, good enough for load generation. */
@@ -98,19 +103,27 @@ static int bench_wait_subs(qw_bus_sock *s, unsigned want)
 }
 
 static int bench_send(qw_bus_sock *s, unsigned char **pool, size_t len,
-		      size_t n, uint64_t readings)
+		      size_t n, uint64_t readings, unsigned groups)
 {
+	static uint64_t gseq[BENCH_GROUPS_MAX]; /* next seq per topic */
+	char topic[16] = "bench";
 	double t0, secs;
 	uint64_t seq;
-	size_t f = 0;
+	size_t f = 0, tlen = 5;
+	unsigned g = 0;
 	struct timespec settle = {0, (long)(BENCH_SETTLE_S * 1e9)};
 
 	nanosleep(&settle, NULL);
 	t0 = qw_log_monotonic();
 	for (seq = 0; seq + n <= readings; seq += n) {
-		bench_put_seq(pool[f], seq);
-		if (qw_bus_send(s, "bench", 5, pool[f], len, 0) != 0)
+		if (groups > 1)
+			tlen = (size_t)snprintf(topic, sizeof topic,
+						"bench%03u", g);
+		bench_put_seq(pool[f], gseq[g]);
+		if (qw_bus_send(s, topic, tlen, pool[f], len, 0) != 0)
 			return -1;
+		gseq[g] += n;
+		g = (g + 1) % groups;
 		f = (f + 1) % BENCH_POOL;
 	}
 	secs = qw_log_monotonic() - t0;
@@ -121,7 +134,7 @@ static int bench_send(qw_bus_sock *s, unsigned char **pool, size_t len,
 
 int main(int argc, char **argv)
 {
-	uint64_t p, n, readings, subs;
+	uint64_t p, n, readings, subs, groups = 1;
 	struct qw_endpoint ep;
 	struct qw_bus_opts o;
 	unsigned char *pool[BENCH_POOL] = {0};
@@ -130,13 +143,15 @@ int main(int argc, char **argv)
 	size_t len, i;
 	int rc = 1;
 
-	if (argc != 6 || qw_bus_endpoint_parse(argv[1], 1, &ep) ||
+	if (argc < 6 || argc > 7 || qw_bus_endpoint_parse(argv[1], 1, &ep) ||
 	    qw_num_u64(argv[2], (size_t)-1, 1, QW_MAX_P, &p) ||
 	    qw_num_u64(argv[3], (size_t)-1, 1, 1u << 16, &n) ||
 	    qw_num_u64(argv[4], (size_t)-1, 1, UINT64_MAX / 2, &readings) ||
-	    qw_num_u64(argv[5], (size_t)-1, 1, 64, &subs)) {
+	    qw_num_u64(argv[5], (size_t)-1, 1, BENCH_SUBS_MAX, &subs) ||
+	    (argc == 7 && qw_num_u64(argv[6], (size_t)-1, 1, BENCH_GROUPS_MAX,
+				     &groups))) {
 		fprintf(stderr, "usage: bench_pub ENDPOINT P BATCH READINGS "
-			"SUBSCRIBERS\n");
+			"SUBSCRIBERS [GROUPS]\n");
 		return 2;
 	}
 	len = qw_wire_binary_len(p, n);
@@ -150,7 +165,8 @@ int main(int argc, char **argv)
 	else if (bench_wait_subs(s, (unsigned)subs) != 0)
 		fprintf(stderr, "bench_pub: subscribers did not come\n");
 	else
-		rc = bench_send(s, pool, len, n, readings) == 0 ? 0 : 1;
+		rc = bench_send(s, pool, len, n, readings,
+				(unsigned)groups) == 0 ? 0 : 1;
 	qw_bus_close(s);
 	qw_bus_free(bus);
 	for (i = 0; i < BENCH_POOL; i++)

@@ -1,6 +1,7 @@
-/* check.c: `quadwatch check -c FILE`: validates a configuration and prints
- * what it implies, without touching the bus (as ntpd -n does).  For each
- * group it builds the real detector (qw_detector_alloc) and prints the
+/* check.c: `quadwatch check -c FILE [-g GROUPS]`: validates a
+ * configuration and prints what it implies for the groups a daemon would
+ * own (-g, else [bus] groups, else all), without touching the bus (as
+ * ntpd -n does).  For each group it builds the real detector (qw_detector_alloc) and prints the
  * per-reading alpha solved from alarms_per_day, rate and persist, the plain
  * chi-square limit and the finite-sample corrected limit at full effective
  * size.  Output is one "key: value [unit]" line per fact, a blank line and
@@ -22,8 +23,9 @@
 
 static void chk_usage(FILE *f)
 {
-	fprintf(f, "usage: quadwatch check -c FILE [-q]\n"
+	fprintf(f, "usage: quadwatch check -c FILE [-g GROUPS] [-q]\n"
 		   "  -c FILE  configuration to validate (quadwatch.ini(5))\n"
+		   "  -g GROUPS  the groups a daemon run with -g would own\n"
 		   "  -q       print nothing; the exit code tells\n"
 		   "  -h       this help\n");
 }
@@ -58,6 +60,28 @@ static void chk_endpoint(const char *key, const struct qw_endpoint *ep)
 		chk_kv(0, key, "%c%s", ep->bind ? '@' : '>', ep->addr);
 }
 
+/* The groups this daemon owns ([bus] groups or -g) and where that came
+ * from; a daemon without a selection owns every group of the file. */
+static void chk_owned(const struct qw_config *c)
+{
+	size_t i;
+
+	chk_kv(0, "groups_in_file", "%zu", c->ngroups_file);
+	chk_key(0, "owned");
+	if (!c->groups_cli && c->groups_line == 0)
+		printf("all");
+	for (i = 0; (c->groups_cli || c->groups_line) && i < c->ngroups; i++)
+		printf("%s%s", i ? ", " : "", c->groups[i].name);
+	putchar('\n');
+	if (c->groups_cli)
+		chk_kv(0, "selection", "-g");
+	else if (c->groups_line)
+		chk_kv(0, "selection", "[bus] groups, line %d",
+		       c->groups_line);
+	else
+		chk_kv(0, "selection", "none (every group)");
+}
+
 static void chk_daemon(const struct qw_config *c)
 {
 	size_t i;
@@ -74,6 +98,7 @@ static void chk_daemon(const struct qw_config *c)
 	chk_kv(0, "security", "%s", c->server_key[0] || c->client_keys[0] ?
 	       "curve" : "off");
 	chk_kv(0, "groups", "%zu", c->ngroups);
+	chk_owned(c);
 }
 
 /* A list of p channel names or floors on one line. */
@@ -222,14 +247,15 @@ int qw_cmd_check(int argc, char **argv)
 {
 	struct qw_config cfg;
 	char err[QW_CONFIG_ERR_MAX];
-	const char *path = NULL;
+	const char *path = NULL, *owned = NULL;
 	int c, quiet = 0, rc = 0;
 	size_t i;
 
 	optind = 1;
-	while ((c = getopt(argc, argv, "c:qh")) != -1) {
+	while ((c = getopt(argc, argv, "c:g:qh")) != -1) {
 		switch (c) {
 		case 'c': path = optarg; break;
+		case 'g': owned = optarg; break;
 		case 'q': quiet = 1; break;
 		case 'h': chk_usage(stdout); return QW_EXIT_OK;
 		default: chk_usage(stderr); return QW_EXIT_USAGE;
@@ -239,7 +265,7 @@ int qw_cmd_check(int argc, char **argv)
 		chk_usage(stderr);
 		return QW_EXIT_USAGE;
 	}
-	rc = qw_config_load(path, &cfg, err, sizeof err);
+	rc = qw_config_load_owned(path, owned, &cfg, err, sizeof err);
 	if (rc != 0) {
 		fprintf(stderr, "quadwatch check: %s\n", err);
 		return rc == QW_ENOMEM ? QW_EXIT_FAIL : QW_EXIT_USAGE;

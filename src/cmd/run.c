@@ -1,4 +1,5 @@
-/* run.c: `quadwatch run -c FILE [-v|-q]`, the daemon (see quadwatch-run(1)).
+/* run.c: `quadwatch run -c FILE [-g GROUPS] [-v|-q]`, the daemon (see
+ * quadwatch-run(1)).
  *
  * Parses the command line and the config, binds, connects and allocates
  * everything (run_setup.c), then loops: wait on every input and the control
@@ -58,19 +59,24 @@ static int run_signals(void)
 
 static int run_usage(void)
 {
-	fprintf(stderr, "usage: quadwatch run -c FILE [-v|-q]\n");
+	fprintf(stderr, "usage: quadwatch run -c FILE [-g GROUPS] [-v|-q]\n");
 	return QW_EXIT_USAGE;
 }
 
-/* -c FILE, -v (debug), -q (errors only).  0 or QW_EXIT_USAGE. */
-static int run_args(int argc, char **argv, const char **path)
+/* -c FILE, -g GROUPS (the groups owned, replacing [bus] groups), -v
+ * (debug), -q (errors only).  0 or QW_EXIT_USAGE. */
+static int run_args(int argc, char **argv, const char **path,
+		    const char **owned)
 {
 	int i;
 
 	*path = NULL;
+	*owned = NULL;
 	for (i = 1; i < argc; i++) {
 		if (strcmp(argv[i], "-c") == 0 && i + 1 < argc)
 			*path = argv[++i];
+		else if (strcmp(argv[i], "-g") == 0 && i + 1 < argc)
+			*owned = argv[++i];
 		else if (strcmp(argv[i], "-v") == 0)
 			qw_log_set_level(QW_LOG_DEBUG);
 		else if (strcmp(argv[i], "-q") == 0)
@@ -170,12 +176,13 @@ int qw_cmd_run(int argc, char **argv)
 {
 	struct run_daemon dm;
 	struct run_notify rn;
-	const char *path;
+	const char *path, *owned;
 	int rc;
 
-	if ((rc = run_args(argc, argv, &path)) != 0)
+	if ((rc = run_args(argc, argv, &path, &owned)) != 0)
 		return rc;
 	memset(&dm, 0, sizeof dm);
+	dm.owned = owned;
 	if (run_signals() != 0) {
 		qw_log_errno(QW_LOG_ERROR, "sigaction");
 		return QW_EXIT_FAIL;

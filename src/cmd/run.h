@@ -116,6 +116,8 @@ struct run_topics {
 
 struct run_daemon {
 	const char *path;            /* the config file */
+	const char *owned;           /* -g: groups owned, replacing [bus]
+					groups; NULL: the file's choice */
 	struct qw_config cfg;
 	struct run_group *groups;    /* cfg.ngroups */
 	struct run_topics topics;

@@ -417,10 +417,11 @@ static void run_timers(struct run_daemon *dm)
 			      ? now + dm->cfg.state_every : 0;
 }
 
-static int run_load(const char *path, struct qw_config *cfg)
+static int run_load(const struct run_daemon *dm, struct qw_config *cfg)
 {
 	char err[QW_CONFIG_ERR_MAX];
-	int rc = qw_config_load(path, cfg, err, sizeof err);
+	int rc = qw_config_load_owned(dm->path, dm->owned, cfg, err,
+				      sizeof err);
 
 	if (rc != 0)
 		qw_log(QW_LOG_ERROR, "%s", err);
@@ -439,7 +440,7 @@ int qw_run_setup(struct run_daemon *dm, const char *path)
 	dm->auth_log.interval = RUN_REJECT_LOG_EVERY;
 	dm->auth_log.last = -1;
 	dm->started = qw_log_monotonic();
-	if (run_load(path, &b.cfg) != 0)
+	if (run_load(dm, &b.cfg) != 0)
 		return QW_ERROR(QW_EFORMAT); /* exit 2: the message is logged */
 	dm->bus = qw_bus_alloc();
 	/* inputs, control and the ZAP handler */
@@ -466,7 +467,7 @@ int qw_run_reload(struct run_daemon *dm)
 
 	memset(&b, 0, sizeof b);
 	qw_log(QW_LOG_INFO, "reloading %s", dm->path);
-	rc = run_load(dm->path, &b.cfg);
+	rc = run_load(dm, &b.cfg);
 	if (rc == 0)
 		rc = run_build(dm, &b);
 	if (rc != 0) {

@@ -240,6 +240,19 @@ int qw_bus_open(qw_bus *bus, int kind, const struct qw_endpoint *ep,
 	return 0;
 }
 
+int qw_bus_attach(qw_bus_sock *s, const struct qw_endpoint *ep,
+		  const struct qw_bus_curve *security)
+{
+	if (ep->addr[0] == '\0')
+		return QW_ERROR(QW_EINVAL);
+	if (security != NULL && bus_secure(s->z, security) != 0)
+		return QW_ERROR(QW_EIO);
+	if ((ep->bind ? zmq_bind(s->z, ep->addr)
+		      : zmq_connect(s->z, ep->addr)) != 0)
+		return QW_ERROR(QW_EIO);
+	return 0;
+}
+
 void qw_bus_close(qw_bus_sock *s)
 {
 	if (s == NULL)

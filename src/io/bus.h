@@ -90,6 +90,15 @@ int qw_bus_open(qw_bus *bus, int kind, const struct qw_endpoint *ep,
 		const struct qw_bus_opts *o, qw_bus_sock **out);
 /* NULL is a no-op. */
 void qw_bus_close(qw_bus_sock *s);
+/* Binds or connects s to one more endpoint (a relay's frontend reaching
+ * several daemons).  security, when not NULL, replaces the socket's CURVE
+ * keys for this and later endpoints (libzmq reads them when a connection
+ * starts, so each daemon can have its own server key); NULL keeps what
+ * the socket has.  qw_bus_sock_endpoint still names the first endpoint.
+ * 0 or QW_EIO/QW_EINVAL. */
+int qw_bus_attach(qw_bus_sock *s, const struct qw_endpoint *ep,
+		  const struct qw_bus_curve *security);
+
 const struct qw_endpoint *qw_bus_sock_endpoint(const qw_bus_sock *s);
 /* The address actually bound (resolves tcp port "*"); "" when unknown. */
 int qw_bus_sock_last_endpoint(qw_bus_sock *s, char *buf, size_t cap);

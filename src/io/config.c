@@ -1,7 +1,8 @@
 /* config.c: the ini configuration file into struct qw_config (see config.h
  * and quadwatch.ini(5)).  This file reads the lines and sections and hands
  * each key to its section's table: config_bus.c has [bus], [state] and
- * [security], config_group.c has [group NAME].
+ * [security], config_group.c has [group NAME], config_shard.c keeps the
+ * groups [bus] groups (or -g) selects once the file is read.
  *
  * inih does the key = value splitting and comments.  The Debian build of
  * inih passes no line numbers to the handler, so the file is handed to
@@ -398,9 +399,11 @@ static void cfg_defaults(struct qw_config *cfg)
 	cfg->state_every = CFG_STATE_EVERY;
 }
 
-/* Parses text[0..len) as the file named name. */
+/* Parses text[0..len) as the file named name; owned: as
+ * qw_config_load_owned. */
 static int cfg_parse_text(const char *text, size_t len, const char *name,
-			  struct qw_config *cfg, char *err, size_t errlen)
+			  const char *owned, struct qw_config *cfg, char *err,
+			  size_t errlen)
 {
 	struct cfg_parse ps;
 	int at;
@@ -412,6 +415,7 @@ static int cfg_parse_text(const char *text, size_t len, const char *name,
 	ps.len = len;
 	ps.err = err;
 	ps.errlen = errlen;
+	ps.owned_cli = owned;
 	at = ini_parse_stream(cfg_reader, &ps, cfg_handler, &ps);
 	cfg_section_end(&ps);
 	ps.secname[0] = '\0';
@@ -426,12 +430,15 @@ static int cfg_parse_text(const char *text, size_t len, const char *name,
 	if (ps.rc == 0 && cfg->ngroups == 0)
 		cfg_fail(&ps, QW_ERROR(QW_EFORMAT), ps.line > 0 ? ps.line : 1,
 			 NULL, "expected at least one [group NAME] section");
+	if (ps.rc == 0)
+		cfg_owned_apply(&ps);
 	if (ps.rc == 0 && cfg->ninputs == 0) {
 		cfg->ninputs = 1;
 		cfg_default_endpoint(&cfg->inputs[0], QW_CONFIG_DEFAULT_INPUT);
 	}
 	cfg_group_drop(&ps);
 	free(ps.value);
+	free(ps.owned);
 	if (ps.rc != 0)
 		qw_config_free(cfg);
 	return ps.rc;
@@ -462,7 +469,7 @@ int qw_config_load_string(const char *text, const char *name,
 
 	if (rc != 0)
 		return rc;
-	return cfg_parse_text(text, strlen(text), name, cfg, err, errlen);
+	return cfg_parse_text(text, strlen(text), name, NULL, cfg, err, errlen);
 }
 
 /* Reads the whole file into a new buffer; QW_EIO or QW_EFORMAT (too big)
@@ -515,6 +522,12 @@ static int cfg_slurp(const char *path, char **text, size_t *len, char *err,
 int qw_config_load(const char *path, struct qw_config *cfg, char *err,
 		   size_t errlen)
 {
+	return qw_config_load_owned(path, NULL, cfg, err, errlen);
+}
+
+int qw_config_load_owned(const char *path, const char *owned,
+			 struct qw_config *cfg, char *err, size_t errlen)
+{
 	char scratch[QW_CONFIG_ERR_MAX];
 	char *text = NULL;
 	size_t len = 0;
@@ -531,7 +544,7 @@ int qw_config_load(const char *path, struct qw_config *cfg, char *err,
 		qw_config_free(cfg);
 		return rc;
 	}
-	rc = cfg_parse_text(text, len, path, cfg, err, errlen);
+	rc = cfg_parse_text(text, len, path, owned, cfg, err, errlen);
 	free(text);
 	return rc;
 }

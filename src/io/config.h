@@ -10,7 +10,8 @@
 #include "quadwatch.h"
 
 #define QW_CONFIG_MAX_INPUTS 16   /* input endpoints in [bus] */
-#define QW_CONFIG_MAX_GROUPS 256  /* [group NAME] sections */
+#define QW_CONFIG_MAX_GROUPS 1024 /* [group NAME] sections: 10^4 channels
+				     at p = 16 is 625 (docs/operations.md) */
 #define QW_CONFIG_NAME_MAX 64     /* bytes in a group or channel name */
 #define QW_CONFIG_ENDPOINT_MAX 256/* bytes in an endpoint */
 #define QW_CONFIG_ERR_MAX 512     /* bytes in an error message */
@@ -50,6 +51,11 @@ struct qw_config {
 	char client_keys[1024];         /* directory of allowed public keys */
 	char publisher_key[1024];       /* public key file of the publishers
 					   that connecting inputs reach */
+	/* [bus] groups or the -g option: the groups this daemon owns; the
+	   others were dropped after reading (config_shard.c) */
+	size_t ngroups_file;            /* [group] sections in the file */
+	int groups_line;                /* line of [bus] groups; 0 = unset */
+	int groups_cli;                 /* 1: the selection came from -g */
 };
 
 #define QW_CONFIG_DEFAULT_INPUT ">tcp://127.0.0.1:5601"
@@ -62,6 +68,12 @@ struct qw_config {
  * expected" to err; *cfg is then empty and safe to free. */
 int qw_config_load(const char *path, struct qw_config *cfg, char *err,
 		   size_t errlen);
+/* As qw_config_load; owned, when not NULL, is a comma-separated list of
+ * group names that replaces the file's [bus] groups (the -g option of run
+ * and check).  Each name must be a group of the file, else QW_EFORMAT
+ * with "FILE: -g: ..." in err. */
+int qw_config_load_owned(const char *path, const char *owned,
+			 struct qw_config *cfg, char *err, size_t errlen);
 /* The same from text in memory (NUL-terminated); name stands for the file
  * in messages and in cfg->path.  For tests and fuzzing. */
 int qw_config_load_string(const char *text, const char *name,

@@ -151,6 +151,7 @@ const struct cfg_key cfg_bus_keys[] = {
 	{"control", bus_control, 0},
 	{"stats_every", bus_stats_every, 0},
 	{"max_frame", bus_max_frame, 0},
+	{"groups", cfg_bus_groups, 1}, /* config_shard.c */
 	{NULL, NULL, 0},
 };
 

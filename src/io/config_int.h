@@ -1,5 +1,6 @@
 /* config_int.h: what config.c (the reader), config_bus.c ([bus], [state],
- * [security]) and config_group.c ([group NAME]) share.  Private to them. */
+ * [security]), config_group.c ([group NAME]) and config_shard.c (the
+ * groups owned) share.  Private to them. */
 #ifndef QW_CONFIG_INT_H
 #define QW_CONFIG_INT_H
 
@@ -55,6 +56,10 @@ struct cfg_parse {
 	char *value;
 	size_t vlen, vcap;
 	struct cfg_group_tmp grp;  /* the [group NAME] being read */
+	/* the groups this daemon owns (config_shard.c) */
+	char *owned;               /* [bus] groups as written; NULL: unset */
+	int owned_line;            /* its line */
+	const char *owned_cli;     /* -g list, replaces owned; NULL: none */
 	/* the first error */
 	int rc;                    /* 0 or an enum qw_err */
 	int err_line;
@@ -97,6 +102,12 @@ size_t cfg_count(const char *s);
 extern const struct cfg_key cfg_bus_keys[];
 extern const struct cfg_key cfg_state_keys[];
 extern const struct cfg_key cfg_security_keys[];
+
+/* config_shard.c: the [bus] groups setter (in cfg_bus_keys), and the
+ * selection applied once the file is read: drops the groups not owned and
+ * sets cfg->ngroups_file, groups_line, groups_cli.  0 or the error. */
+int cfg_bus_groups(struct cfg_parse *ps, const char *value);
+int cfg_owned_apply(struct cfg_parse *ps);
 
 /* config_group.c */
 extern const struct cfg_key cfg_group_keys[];

@@ -153,6 +153,7 @@ static int run_loop(struct run_daemon *dm, struct run_notify *rn)
 
 	while (!run_stop) {
 		run_step_reload(dm, rn);
+		qw_run_mqtt_arm(dm);
 		rc = qw_bus_poll(dm->poller, run_timeout_ms(dm, rn));
 		if (rc < 0) {
 			qw_log(QW_LOG_ERROR, "poll: %s", qw_bus_strerror());
@@ -160,6 +161,7 @@ static int run_loop(struct run_daemon *dm, struct run_notify *rn)
 		}
 		if (rc == 0)
 			run_step_sockets(dm);
+		qw_run_mqtt_step(dm);
 		run_step_timers(dm);
 		qw_run_notify_tick(rn, dm);
 	}

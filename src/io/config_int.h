@@ -45,7 +45,8 @@ struct cfg_parse {
 	int indented;              /* that line is a continuation candidate */
 	int section;               /* enum cfg_section */
 	char secname[CFG_SECTION_MAX]; /* as written, for messages */
-	int sec_line[4];           /* first line of [bus] [state] [security] */
+	int sec_line[4];           /* first line of [bus] [state] [security]
+				      [mqtt] */
 	int key_line[CFG_KEYS_MAX];/* line each key of this section was set */
 	/* the key being read; continuation lines append to its value */
 	int have_key;
@@ -68,7 +69,8 @@ enum cfg_section {
 	CFG_SEC_STATE = 2,
 	CFG_SEC_SECURITY = 3,
 	CFG_SEC_GROUP = 4,
-	CFG_SEC_BAD = 5       /* unknown header; its keys are ignored */
+	CFG_SEC_BAD = 5,      /* unknown header; its keys are ignored */
+	CFG_SEC_MQTT = 6
 };
 
 /* A key of a section: its setter parses value and stores it. */
@@ -97,6 +99,16 @@ size_t cfg_count(const char *s);
 extern const struct cfg_key cfg_bus_keys[];
 extern const struct cfg_key cfg_state_keys[];
 extern const struct cfg_key cfg_security_keys[];
+
+/* config_mqtt.c */
+extern const struct cfg_key cfg_mqtt_keys[];
+/* 1 when s[0..n) begins with mqtt:// or mqtts:// */
+int cfg_is_mqtt(const char *s, size_t n);
+/* One mqtt:// item of [bus] input into cfg->mqtt.inputs. */
+int cfg_mqtt_input(struct cfg_parse *ps, const char *s, size_t n);
+/* Defaults and checks across keys once the file is read; section_line is
+ * the line of [mqtt] (0: absent). */
+int cfg_mqtt_finish(struct cfg_parse *ps, int section_line);
 
 /* config_group.c */
 extern const struct cfg_key cfg_group_keys[];

@@ -203,6 +203,8 @@ void qw_run_mqtt_report(const struct run_daemon *dm, json_t *o)
 				    json_integer((json_int_t)r->rejected[i]));
 	json_object_set_new(m, "connected",
 			    json_boolean(qw_mqtt_connected(r->client)));
+	json_object_set_new(m, "subscribed", json_integer((json_int_t)
+			    qw_mqtt_subscribed(r->client)));
 	json_object_set_new(m, "received", json_integer((json_int_t)r->received));
 	json_object_set_new(m, "decoded", json_integer((json_int_t)r->decoded));
 	json_object_set_new(m, "rejected", rej);

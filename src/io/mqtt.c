@@ -65,6 +65,8 @@ struct qw_mqtt {
 	double attempt_at;         /* monotonic s the attempt began */
 	double delay;              /* s: the next back-off */
 	uint64_t delivered;        /* messages in the current read */
+	size_t subscribed;         /* filters the broker acknowledged in this
+				      session */
 	struct qw_mqtt_counts n;
 	char why[MQTT_WHY_MAX];
 };
@@ -128,6 +130,7 @@ static void mqtt_on_connect(struct mosquitto *mosq, void *obj, int rc)
 		return; /* the library closes the socket: on_disconnect */
 	}
 	m->state = MQTT_UP;
+	m->subscribed = 0;
 	m->n.connects++;
 	m->delay = m->c.reconnect_min;
 	for (i = 0; i < m->c.ninputs; i++) {
@@ -137,6 +140,21 @@ static void mqtt_on_connect(struct mosquitto *mosq, void *obj, int rc)
 		if (s != MOSQ_ERR_SUCCESS)
 			mqtt_why(m, "subscribe", mosquitto_strerror(s));
 	}
+}
+
+static void mqtt_on_subscribe(struct mosquitto *mosq, void *obj, int mid,
+			      int qos_count, const int *granted_qos)
+{
+	qw_mqtt *m = obj;
+
+	(void)mosq;
+	(void)mid;
+	/* 0x80 in granted_qos: the broker refused the filter (MQTT 3.1.1,
+	 * 3.9.3); one filter per SUBSCRIBE here */
+	if (qos_count == 1 && granted_qos[0] != 0x80)
+		m->subscribed++;
+	else
+		mqtt_why(m, "subscribe", "refused by the broker");
 }
 
 static void mqtt_on_disconnect(struct mosquitto *mosq, void *obj, int rc)
@@ -253,6 +271,7 @@ qw_mqtt *qw_mqtt_alloc(const struct qw_mqtt_conf *c, qw_mqtt_on_message cb,
 	mosquitto_connect_callback_set(m->mosq, mqtt_on_connect);
 	mosquitto_disconnect_callback_set(m->mosq, mqtt_on_disconnect);
 	mosquitto_message_callback_set(m->mosq, mqtt_on_message);
+	mosquitto_subscribe_callback_set(m->mosq, mqtt_on_subscribe);
 	if (mqtt_secure(m, err, errlen) != 0)
 		goto fail;
 	return m;
@@ -386,6 +405,11 @@ int qw_mqtt_publish(qw_mqtt *m, const char *group, const void *payload,
 int qw_mqtt_connected(const qw_mqtt *m)
 {
 	return m->state == MQTT_UP;
+}
+
+size_t qw_mqtt_subscribed(const qw_mqtt *m)
+{
+	return m->state == MQTT_UP ? m->subscribed : 0;
 }
 
 const struct qw_mqtt_counts *qw_mqtt_counts(const qw_mqtt *m)

@@ -59,6 +59,8 @@ int qw_mqtt_publish(qw_mqtt *m, const char *group, const void *payload,
 		    size_t len);
 /* 1 while a session is up. */
 int qw_mqtt_connected(const qw_mqtt *m);
+/* Input filters the broker has acknowledged in this session. */
+size_t qw_mqtt_subscribed(const qw_mqtt *m);
 const struct qw_mqtt_counts *qw_mqtt_counts(const qw_mqtt *m);
 /* Why the last attempt or session ended ("" when none did). */
 const char *qw_mqtt_why(const qw_mqtt *m);

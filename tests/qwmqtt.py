@@ -189,8 +189,9 @@ def wait_mqtt(d, cond, what, timeout=qt.WAIT):
 
 
 def mqtt_section(port, qos=1, alerts=True, scheme="mqtt", extra=()):
-    lines = ["", "[mqtt]", "qos = %d" % qos,
-             "reconnect_min = 0.1s", "reconnect_max = 0.5s"]
+    lines = ["", "[mqtt]", "reconnect_min = 0.1s", "reconnect_max = 0.5s"]
+    if qos is not None:
+        lines.append("qos = %d" % qos)
     if alerts:
         lines.append("alerts = %s://127.0.0.1:%d/plant/+/alerts" %
                      (scheme, port))

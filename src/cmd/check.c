@@ -58,6 +58,33 @@ static void chk_endpoint(const char *key, const struct qw_endpoint *ep)
 		chk_kv(0, key, "%c%s", ep->bind ? '@' : '>', ep->addr);
 }
 
+static void chk_mqtt_url(const char *key, const struct qw_mqtt_url *u)
+{
+	int v6 = strchr(u->host, ':') != NULL;
+
+	chk_kv(0, key, "%s://%s%s%s:%d/%s", u->tls ? "mqtts" : "mqtt",
+	       v6 ? "[" : "", u->host, v6 ? "]" : "", u->port, u->topic);
+}
+
+/* The MQTT inputs, alerts and settings, when a broker is named. */
+static void chk_mqtt(const struct qw_mqtt_conf *m)
+{
+	size_t i;
+
+	if (m->ninputs == 0 && !m->has_alerts)
+		return;
+	for (i = 0; i < m->ninputs; i++)
+		chk_mqtt_url("input", &m->inputs[i]);
+	if (m->has_alerts)
+		chk_mqtt_url("mqtt_alerts", &m->alerts);
+	chk_kv(0, "mqtt", "qos %d, keepalive %.10g s, reconnect %.10g to "
+	       "%.10g s, %s session%s%s", m->qos, m->keepalive,
+	       m->reconnect_min, m->reconnect_max,
+	       m->client_id[0] ? "kept" : "clean",
+	       m->credentials[0] ? ", credentials from a file" : "",
+	       m->cert_file[0] ? ", client certificate" : "");
+}
+
 static void chk_daemon(const struct qw_config *c)
 {
 	size_t i;
@@ -65,6 +92,7 @@ static void chk_daemon(const struct qw_config *c)
 	chk_kv(0, "config", "%s", c->path);
 	for (i = 0; i < c->ninputs; i++)
 		chk_endpoint("input", &c->inputs[i]);
+	chk_mqtt(&c->mqtt);
 	chk_endpoint("alerts", &c->alerts);
 	chk_endpoint("control", &c->control);
 	chk_kv(0, "stats_every", "%.10g s", c->stats_every);

@@ -88,6 +88,13 @@ def test_password(tmp):
              "a password in the log")
     qt.note("mqtt auth: file credentials let in; a wrong password refused "
             "%d times, counted and logged" % m["refused"])
+    # the operator fixes the file and reloads: the new login is used
+    write(wrong, "%s\n%s\n" % (USER, PASSWORD))
+    d2.proc.send_signal(qt.signal.SIGHUP)
+    st = qm.wait_mqtt(d2, lambda m: m["connects"] == 1 and
+                      m["subscribed"] == 1, "login after the fix and reload")
+    qt.check(st["reloads"] == 1, "reload not counted")
+    qt.note("mqtt auth: a fixed credentials file takes effect on reload")
     d1.stop()
     d2.stop()
     cl.close()

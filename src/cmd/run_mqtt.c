@@ -11,9 +11,10 @@
  * rejection causes and the per-group counters are the same.  Alerts go
  * out on MQTT too when [mqtt] alerts is set, on the group's own topic.
  *
- * Reload keeps the connection when the MQTT settings are unchanged, and
- * otherwise replaces the client (its connection counters are carried
- * over).  Changes of state are logged: connected, lost, refused (bad
+ * Reload keeps the connection when the MQTT settings and the credentials
+ * file's contents are unchanged, and otherwise replaces the client (its
+ * connection counters are carried over); TLS files changed in place take
+ * a restart.  Changes of state are logged: connected, lost, refused (bad
  * credentials), and failed attempts at a bounded rate.
  *
  * Workload: one callback per MQTT message; no allocation of ours. */
@@ -70,7 +71,11 @@ int qw_run_mqtt_build(struct run_daemon *dm, const struct qw_config *cfg,
 	*reused = 0;
 	if (c->ninputs == 0 && !c->has_alerts)
 		return 0;
-	if (dm->mqtt.client != NULL && run_mqtt_same(&dm->cfg.mqtt, c)) {
+	/* the same settings and the same user name and password (a changed
+	 * credentials file under the same name takes effect on reload) */
+	if (dm->mqtt.client != NULL && run_mqtt_same(&dm->cfg.mqtt, c) &&
+	    qw_mqtt_credentials_sig(c->credentials) ==
+	    qw_mqtt_secret_sig(dm->mqtt.client)) {
 		*out = dm->mqtt.client;
 		*reused = 1;
 		return 0;

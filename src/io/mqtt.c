@@ -64,6 +64,7 @@ struct qw_mqtt {
 	double next_try;           /* monotonic s; 0 = at once */
 	double attempt_at;         /* monotonic s the attempt began */
 	double delay;              /* s: the next back-off */
+	uint64_t secret_sig;       /* qw_mqtt_credentials_sig when made */
 	uint64_t delivered;        /* messages in the current read */
 	size_t subscribed;         /* filters the broker acknowledged in this
 				      session */
@@ -210,6 +211,39 @@ static void mqtt_on_message(struct mosquitto *mosq, void *obj,
 	      msg->payloadlen > 0 ? (size_t)msg->payloadlen : 0);
 }
 
+/* FNV-1a 64 over user, a 0 byte, pass; never 0. */
+static uint64_t mqtt_sig(const char *user, const char *pass)
+{
+	uint64_t h = 14695981039346656037ULL; /* FNV-1a 64 offset basis */
+	const char *s;
+
+	for (s = user; *s; s++)
+		h = (h ^ (unsigned char)*s) * 1099511628211ULL; /* FNV prime */
+	h *= 1099511628211ULL; /* the 0 byte */
+	for (s = pass; *s; s++)
+		h = (h ^ (unsigned char)*s) * 1099511628211ULL;
+	return h | 1;
+}
+
+uint64_t qw_mqtt_credentials_sig(const char *path)
+{
+	char user[QW_CONFIG_SECRET_MAX], pass[QW_CONFIG_SECRET_MAX];
+	uint64_t h = 0;
+
+	if (path[0] != '\0' &&
+	    qw_config_mqtt_credentials(path, user, sizeof user, pass,
+				       sizeof pass, NULL, 0) == 0)
+		h = mqtt_sig(user, pass);
+	explicit_bzero(user, sizeof user);
+	explicit_bzero(pass, sizeof pass);
+	return h;
+}
+
+uint64_t qw_mqtt_secret_sig(const qw_mqtt *m)
+{
+	return m->secret_sig;
+}
+
 /* TLS and credentials on a new client. */
 static int mqtt_secure(qw_mqtt *m, char *err, size_t errlen)
 {
@@ -234,6 +268,8 @@ static int mqtt_secure(qw_mqtt *m, char *err, size_t errlen)
 		return 0;
 	rc = qw_config_mqtt_credentials(c->credentials, user, sizeof user,
 					pass, sizeof pass, err, errlen);
+	if (rc == 0)
+		m->secret_sig = mqtt_sig(user, pass);
 	if (rc == 0 &&
 	    mosquitto_username_pw_set(m->mosq, user, pass) != MOSQ_ERR_SUCCESS) {
 		qw_errbuf(err, errlen, "%s: out of memory", c->credentials);

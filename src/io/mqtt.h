@@ -64,6 +64,12 @@ size_t qw_mqtt_subscribed(const qw_mqtt *m);
 const struct qw_mqtt_counts *qw_mqtt_counts(const qw_mqtt *m);
 /* Why the last attempt or session ended ("" when none did). */
 const char *qw_mqtt_why(const qw_mqtt *m);
+/* A 64-bit FNV-1a signature of the user name and password in the
+ * credentials file at path (0: none, or unreadable), so a reload can tell
+ * that they changed without keeping them; qw_mqtt_secret_sig: the one the
+ * client was made with. */
+uint64_t qw_mqtt_credentials_sig(const char *path);
+uint64_t qw_mqtt_secret_sig(const qw_mqtt *m);
 /* The library's version, "2.0.11". */
 const char *qw_mqtt_version(char *buf, size_t cap);
 

@@ -12,7 +12,9 @@ over ZeroMQ.  Checked:
   3. malformed payloads and an unknown group are counted by cause, and
      nothing else changes: the model of skid, the other group;
   4. the broker stopped and started again: the loss and the reconnect are
-     counted, and readings flow again.
+     counted, and readings flow again;
+  5. a reload with the same MQTT settings keeps the session; a changed
+     setting (qos) makes a new connection, counters and models kept.
 Run with /usr/bin/python3."""
 
 import json
@@ -154,6 +156,33 @@ def main():
             "%d connects" % (st["mqtt"]["attempts"],
                              st["mqtt"]["connect_failures"],
                              st["mqtt"]["connects"]))
+    # 5: reload: unchanged MQTT settings keep the session; a change makes
+    # a new connection, and the counters carry over
+    d.proc.send_signal(qt.signal.SIGHUP)
+    st = qm.wait_mqtt(d, lambda m: True, "status")
+    end = time.monotonic() + qt.WAIT
+    while st["reloads"] < 1 and time.monotonic() < end:
+        time.sleep(0.05)
+        st = d.status()
+    qt.check(st["reloads"] == 1 and st["mqtt"]["connects"] == 2 and
+             st["mqtt"]["connected"], "reload without change: %r" %
+             st["mqtt"])
+    d.write(qt.ini(tmp, {"skid": qt.skid_group(), "twin": qt.skid_group()},
+                   [">" + pub.endpoint, mqtt_in],
+                   extra=qm.mqtt_section(broker.port, qos=0)))
+    d.proc.send_signal(qt.signal.SIGHUP)
+    st = qm.wait_mqtt(d, lambda m: m["connects"] == 3 and
+                      m["subscribed"] == 1, "reconnect after a reload")
+    qt.check(st["mqtt"]["received"] == len(msgs) + len(bad) + 1 and
+             st["mqtt"]["disconnects"] == 1, "counters after reload: %r" %
+             st["mqtt"])
+    cl.publish_all([("plant/skid/readings", qt.binary(t2 + 100, x2, 6000))],
+                   qos=0)
+    d.wait_readings("skid", N + 2 * BATCH)
+    qt.check(d.status()["groups"]["skid"]["model_age"] >=
+             before["groups"]["skid"]["model_age"], "model lost on reload")
+    qt.note("mqtt: reload kept the session when unchanged, reconnected "
+            "when changed")
     cl.close()
     watch.close()
     rc, took = d.stop()

@@ -153,14 +153,27 @@ def test_tls(tmp):
                              "keyfile " + srv[0],
                              "require_certificate true"], name="tls")
     files = ["cert_file = " + cli[1], "key_file = " + cli[0]]
-    d1 = daemon(qt.tmpdir(), broker.port, ["ca_file = " + ca[1]] + files,
-                scheme="mqtts", name="tls-good")
+    t1 = qt.tmpdir()
+
+    def d1_text(port, cafile, files, more=None):
+        extra = ["ca_file = " + cafile] + files + ([more] if more else [])
+        inp = "mqtts://127.0.0.1:%d/plant/+/readings" % port
+        return qt.ini(t1, {"skid": qt.skid_group()}, [inp],
+                      extra=qm.mqtt_section(port, alerts=False, extra=extra))
+    d1 = qt.Daemon(t1, d1_text(broker.port, ca[1], files), "tls-good")
     st = qm.wait_mqtt(d1, lambda m: m["subscribed"] == 1, "TLS session")
     cl = qm.Client(broker.port, tls={"ca_certs": ca[1], "certfile": cli[1],
                                      "keyfile": cli[0]})
     one_reading(cl)
     d1.wait_readings("skid", 8)
     qt.check("connected (TLS)" in d1.logtext(), "no TLS line in the log")
+    # a reload that changes a setting makes a new TLS connection
+    d1.write(d1_text(broker.port, ca[1], files, "keepalive = 20s"))
+    d1.proc.send_signal(qt.signal.SIGHUP)
+    qm.wait_mqtt(d1, lambda m: m["connects"] == 2 and m["subscribed"] == 1,
+                 "TLS session after a reload")
+    one_reading(cl)
+    d1.wait_readings("skid", 16)
     d2 = daemon(qt.tmpdir(), broker.port, ["ca_file = " + other[1]] + files,
                 scheme="mqtts", name="tls-bad")
     st = qm.wait_mqtt(d2, lambda m: m["connect_failures"] >= 2,

@@ -14,7 +14,8 @@ over ZeroMQ.  Checked:
   4. the broker stopped and started again: the loss and the reconnect are
      counted, and readings flow again;
   5. a reload with the same MQTT settings keeps the session; a changed
-     setting (qos) makes a new connection, counters and models kept.
+     setting (qos) makes a new connection, counters and models kept;
+  6. with no broker at all, attempts back off (doubling), the daemon runs.
 Run with /usr/bin/python3."""
 
 import json
@@ -187,7 +188,34 @@ def main():
     watch.close()
     rc, took = d.stop()
     qt.check(rc == 0, "daemon exit %d" % rc)
+    backoff()
     print("ok")
+
+
+def backoff():
+    """6: no broker at all: attempts back off, doubling from reconnect_min
+    to reconnect_max.  0.1 s doubling to 1.6 s starts attempts at about
+    0, 0.1, 0.3, 0.7, 1.5, 3.1 s (each up to one 0.25 s poll tick late):
+    6 within SPAN s, where a retry every tick would make some 16."""
+    span = 3.6
+    tmp = qt.tmpdir()
+    port = qm.free_port()  # nothing listens there
+    extra = "\n".join(["", "[mqtt]", "reconnect_min = 0.1s",
+                       "reconnect_max = 1.6s"])
+    d = qt.Daemon(tmp, qt.ini(tmp, {"skid": qt.skid_group()},
+                              ["mqtt://127.0.0.1:%d/plant/+/readings" % port],
+                              extra=extra), "nobroker")
+    time.sleep(span)  # the first attempt was made before control answered
+    m = d.status()["mqtt"]
+    qt.check(4 <= m["attempts"] <= 7, "attempts in %.1f s without a "
+             "broker: %d (back-off 0.1 s doubling to 1.6 s)" %
+             (span, m["attempts"]))
+    qt.check(m["connect_failures"] >= m["attempts"] - 1 and
+             m["connects"] == 0, "failures %r" % m)
+    qt.check(d.alive(), "daemon stopped without a broker")
+    qt.note("mqtt: no broker: %d attempts in %.1f s (back-off)" %
+            (m["attempts"], span))
+    d.stop()
 
 
 if __name__ == "__main__":

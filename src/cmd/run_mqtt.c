@@ -146,13 +146,13 @@ static void run_mqtt_log(struct run_daemon *dm)
 	const struct qw_mqtt_url *u = run_mqtt_broker(dm);
 
 	if (n->refused > r->seen.refused)
-		qw_log_limited(&r->log, QW_LOG_ERROR, "mqtt %s:%d: %s (%llu "
-			       "refusals; check [mqtt] credentials)", u->host,
+		qw_log_limited(&r->log, QW_LOG_ERROR, "mqtt %s:%d: %s (refusals: "
+			       "%llu; check [mqtt] credentials)", u->host,
 			       u->port, qw_mqtt_why(r->client),
 			       (unsigned long long)n->refused);
 	else if (n->connect_failures > r->seen.connect_failures)
-		qw_log_limited(&r->log, QW_LOG_WARN, "mqtt %s:%d: %s (%llu "
-			       "failed attempts; retrying)", u->host, u->port,
+		qw_log_limited(&r->log, QW_LOG_WARN, "mqtt %s:%d: %s (failed "
+			       "attempts: %llu; retrying)", u->host, u->port,
 			       qw_mqtt_why(r->client),
 			       (unsigned long long)n->connect_failures);
 	if (n->disconnects > r->seen.disconnects)

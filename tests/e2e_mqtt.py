@@ -62,6 +62,13 @@ def main():
                                     "twin": qt.skid_group()},
                               [">" + pub.endpoint, mqtt_in],
                               extra=qm.mqtt_section(broker.port)))
+    r = qt.subprocess.run([qt.QW, "check", "-c", d.path],
+                          capture_output=True, text=True)
+    qt.check(r.returncode == 0 and ("input:                     %s\n" %
+                                     mqtt_in) in r.stdout and
+             "mqtt_alerts:               mqtt://127.0.0.1:%d/plant/+/alerts"
+             % broker.port in r.stdout and "qos 1" in r.stdout,
+             "check does not show the MQTT settings:\n" + r.stdout)
     qm.wait_mqtt(d, lambda m: m["connected"] and m["subscribed"] == 1,
                  "first connection")
     pub.wait_sub("twin")

@@ -73,7 +73,7 @@ int qw_run_mqtt_build(struct run_daemon *dm, const struct qw_config *cfg,
 		return 0;
 	/* the same settings and the same user name and password (a changed
 	 * credentials file under the same name takes effect on reload) */
-	if (dm->mqtt.client != NULL && run_mqtt_same(&dm->cfg.mqtt, c) &&
+	if (dm->mqtt.client != NULL && run_mqtt_same(qw_mqtt_conf(dm->mqtt.client), c) &&
 	    qw_mqtt_credentials_sig(c->credentials) ==
 	    qw_mqtt_secret_sig(dm->mqtt.client)) {
 		*out = dm->mqtt.client;
@@ -103,6 +103,14 @@ static void run_mqtt_add(struct qw_mqtt_counts *a,
 	a->publish_failed += b->publish_failed;
 }
 
+/* The broker of client, for log lines. */
+static const struct qw_mqtt_url *run_mqtt_broker(const qw_mqtt *client)
+{
+	const struct qw_mqtt_conf *c = qw_mqtt_conf(client);
+
+	return c->ninputs > 0 ? &c->inputs[0] : &c->alerts;
+}
+
 void qw_run_mqtt_commit(struct run_daemon *dm, qw_mqtt *client, int reused)
 {
 	struct run_mqtt *r = &dm->mqtt;
@@ -119,6 +127,13 @@ void qw_run_mqtt_commit(struct run_daemon *dm, qw_mqtt *client, int reused)
 	r->client = client;
 	memset(&r->seen, 0, sizeof r->seen);
 	r->log.last = -1;
+	if (client != NULL) {
+		const struct qw_mqtt_url *u = run_mqtt_broker(client);
+		char v[32];
+
+		qw_log(QW_LOG_INFO, "mqtt %s:%d: connecting (libmosquitto %s)",
+		       u->host, u->port, qw_mqtt_version(v, sizeof v));
+	}
 }
 
 void qw_run_mqtt_arm(struct run_daemon *dm)
@@ -130,20 +145,12 @@ void qw_run_mqtt_arm(struct run_daemon *dm)
 	qw_bus_poller_set_fd(dm->poller, fd, ww);
 }
 
-/* The broker named in the config, for log lines. */
-static const struct qw_mqtt_url *run_mqtt_broker(const struct run_daemon *dm)
-{
-	const struct qw_mqtt_conf *c = &dm->cfg.mqtt;
-
-	return c->ninputs > 0 ? &c->inputs[0] : &c->alerts;
-}
-
 /* Logs what changed since the last step. */
 static void run_mqtt_log(struct run_daemon *dm)
 {
 	struct run_mqtt *r = &dm->mqtt;
 	const struct qw_mqtt_counts *n = qw_mqtt_counts(r->client);
-	const struct qw_mqtt_url *u = run_mqtt_broker(dm);
+	const struct qw_mqtt_url *u = run_mqtt_broker(r->client);
 
 	if (n->refused > r->seen.refused)
 		qw_log_limited(&r->log, QW_LOG_ERROR, "mqtt %s:%d: %s (refusals: "
@@ -161,7 +168,8 @@ static void run_mqtt_log(struct run_daemon *dm)
 	if (n->connects > r->seen.connects)
 		qw_log(QW_LOG_INFO, "mqtt %s:%d: connected%s, %zu topics, "
 		       "qos %d", u->host, u->port, u->tls ? " (TLS)" : "",
-		       dm->cfg.mqtt.ninputs, dm->cfg.mqtt.qos);
+		       qw_mqtt_conf(r->client)->ninputs,
+		       qw_mqtt_conf(r->client)->qos);
 	r->seen = *n;
 }
 

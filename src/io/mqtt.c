@@ -453,6 +453,11 @@ const struct qw_mqtt_counts *qw_mqtt_counts(const qw_mqtt *m)
 	return &m->n;
 }
 
+const struct qw_mqtt_conf *qw_mqtt_conf(const qw_mqtt *m)
+{
+	return &m->c;
+}
+
 const char *qw_mqtt_why(const qw_mqtt *m)
 {
 	return m->why;

@@ -62,6 +62,8 @@ int qw_mqtt_connected(const qw_mqtt *m);
 /* Input filters the broker has acknowledged in this session. */
 size_t qw_mqtt_subscribed(const qw_mqtt *m);
 const struct qw_mqtt_counts *qw_mqtt_counts(const qw_mqtt *m);
+/* The settings the client was made with (its own copy). */
+const struct qw_mqtt_conf *qw_mqtt_conf(const qw_mqtt *m);
 /* Why the last attempt or session ended ("" when none did). */
 const char *qw_mqtt_why(const qw_mqtt *m);
 /* A 64-bit FNV-1a signature of the user name and password in the

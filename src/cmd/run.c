@@ -188,7 +188,7 @@ int qw_cmd_run(int argc, char **argv)
 		return rc == QW_EFORMAT ? QW_EXIT_USAGE : QW_EXIT_FAIL;
 	}
 	qw_log(QW_LOG_INFO, "running %s: %zu groups, %zu inputs", path,
-	       dm.cfg.ngroups, dm.cfg.ninputs);
+	       dm.cfg.ngroups, dm.cfg.ninputs + dm.cfg.mqtt.ninputs);
 	qw_run_notify_open(&rn);
 	qw_run_notify_ready(&rn, &dm); /* bound, connected, restored */
 	rc = run_loop(&dm, &rn);

@@ -180,7 +180,8 @@ static const struct err_case err_cases[] = {
 	 "t.ini:2: expected 'key = value'"},
 	{"[group a]\nchannels = x\nfloor = 1, 2\ngarbage\n",
 	 "t.ini:3: [group a] floor: expected 1 value (one channel), got 2"},
-	/* MQTT: addresses in [bus] input, the [mqtt] section, across keys */
+	/* MQTT: addresses in [bus] input, the [mqtt] section, across keys
+	 * (the files named are checked apart: test_mqtt_files) */
 #define MB "[bus]\ninput = mqtt://127.0.0.1:1883/plant/+/readings\n" /* 1-2 */
 	{"[bus]\ninput = mqtt://127.0.0.1:1883/plant/readings\n" G,
 	 "t.ini:2: [bus] input: expected exactly one '+' level in the topic "
@@ -217,22 +218,15 @@ static const struct err_case err_cases[] = {
 	{MB "[mqtt]\nqos = one\n" G, "t.ini:4: [mqtt] qos: expected 0"},
 	{"[mqtt]\nqos = 1\n" G, "t.ini:1: [mqtt]: expected an mqtt:// item in "
 	 "[bus] input or an alerts address; no broker is named"},
-	{MB "[mqtt]\ncredentials = /nonexistent/quadwatch-mqtt.cred\n" G,
-	 "t.ini:4: [mqtt] credentials: /nonexistent/quadwatch-mqtt.cred: No "
-	 "such file or directory"},
 	{MB "[mqtt]\ncredentials =\n" G, "t.ini:4: [mqtt] credentials: "
 	 "expected a file path"},
-	{MB "[mqtt]\nca_file = /nonexistent/ca.pem\n" G, "t.ini:4: [mqtt] "
-	 "ca_file: /nonexistent/ca.pem: No such file or directory"},
-	{MB "[mqtt]\nca_file = /etc\n" G, "t.ini:4: [mqtt] ca_file: /etc: "
-	 "expected a regular file"},
+	{MB "[mqtt]\nkey_file =\n" G, "t.ini:4: [mqtt] key_file: expected a "
+	 "file path"},
 	{MB "[mqtt]\nca_file = /etc/passwd\n" G, "t.ini:4: [mqtt] ca_file: "
 	 "expected an mqtts:// broker (TLS); the broker is named with "
 	 "mqtt://"},
 	{"[bus]\ninput = mqtts://h/p/+\n[mqtt]\ncert_file = /etc/passwd\n" G,
 	 "t.ini:4: [mqtt] cert_file: expected cert_file and key_file together"},
-	{MB "[mqtt]\nkey_file = /etc/passwd\n" G, "t.ini:4: [mqtt] key_file: "
-	 "/etc/passwd: secret file is open to group or others (mode 0644)"},
 	{MB "[mqtt]\nalerts = mqtt://other:1883/plant/+/alerts\n" G,
 	 "t.ini:4: [mqtt] alerts: expected the broker of the mqtt:// inputs "
 	 "(one connection)"},

@@ -634,6 +634,65 @@ static void test_mqtt(void **state)
 	unlink(credpath);
 }
 
+/* The files of [mqtt], checked apart from the parse as the daemon reads
+ * them: each error names the file, the line of its key and the key. */
+static void test_mqtt_files(void **state)
+{
+	static const char head[] = "[bus]\ninput = mqtts://127.0.0.1/p/+\n"
+				   "[mqtt]\n";
+	char text[512], err[QW_CONFIG_ERR_MAX], cred[64];
+	struct qw_config c;
+	const struct {
+		const char *keys, *want;
+	} bad[] = {
+		{"ca_file = /nonexistent/ca.pem\n", "t.ini:4: [mqtt] ca_file: "
+		 "/nonexistent/ca.pem: No such file or directory"},
+		{"qos = 1\nca_file = /etc\n", "t.ini:5: [mqtt] ca_file: /etc: "
+		 "expected a regular file"},
+		{"cert_file = /etc/passwd\nkey_file = /etc/passwd\n",
+		 "t.ini:5: [mqtt] key_file: /etc/passwd: secret file is open to "
+		 "group or others (mode 0644); refusing it: chmod 600 "
+		 "/etc/passwd"},
+		{"credentials = /nonexistent/qw.cred\n", "t.ini:4: [mqtt] "
+		 "credentials: /nonexistent/qw.cred: No such file or directory"},
+	};
+	size_t i;
+
+	(void)state;
+	for (i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+		snprintf(text, sizeof text, "%s%s[group g]\nchannels = x\n",
+			 head, bad[i].keys);
+		/* the parse takes the paths as they are... */
+		assert_int_equal(qw_config_load_string(text, "t.ini", &c, err,
+						       sizeof err), 0);
+		/* ...the check refuses them */
+		assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err),
+				 QW_EFORMAT);
+		if (strcmp(err, bad[i].want) != 0)
+			fail_msg("case %zu:\n  got:  %s\n  want: %s", i, err,
+				 bad[i].want);
+		qw_config_free(&c);
+	}
+	/* a credentials file open to others, then fixed */
+	snprintf(cred, sizeof cred, "%s", temp_file("u\np\n", 4));
+	assert_int_equal(chmod(cred, 0644), 0);
+	snprintf(text, sizeof text, "%scredentials = %s\n[group g]\n"
+		 "channels = x\n", head, cred);
+	load_ok(text, &c);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err),
+			 QW_EFORMAT);
+	assert_non_null(strstr(err, "t.ini:4: [mqtt] credentials: "));
+	assert_non_null(strstr(err, "(mode 0644); refusing it: chmod 600"));
+	assert_int_equal(chmod(cred, 0600), 0);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err), 0);
+	qw_config_free(&c);
+	unlink(cred);
+	/* no MQTT, nothing to check */
+	load_ok("[group g]\nchannels = x\n", &c);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err), 0);
+	qw_config_free(&c);
+}
+
 /* The credentials file: two lines (CRLF too), owner-only mode. */
 static void test_mqtt_credentials(void **state)
 {
@@ -729,6 +788,7 @@ int main(void)
 		cmocka_unit_test(test_file_errors),
 		cmocka_unit_test(test_mqtt),
 		cmocka_unit_test(test_mqtt_credentials),
+		cmocka_unit_test(test_mqtt_files),
 #ifdef TEST_ALLOC_FAIL
 		cmocka_unit_test(test_alloc_failure),
 #endif

@@ -231,6 +231,17 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	return 0;
 }
 
+/* The [mqtt] files (TLS, credentials) as the daemon would read them. */
+static int chk_mqtt_files(const struct qw_config *c)
+{
+	char err[QW_CONFIG_ERR_MAX];
+
+	if (qw_config_mqtt_files(c, err, sizeof err) == 0)
+		return 0;
+	fprintf(stderr, "quadwatch check: %s\n", err);
+	return QW_EXIT_USAGE;
+}
+
 /* The [security] key files load as the daemon would load them (modes,
  * formats, the allow-list), so `check` before a start catches a bad key. */
 static int chk_keys(const struct qw_config *c)
@@ -240,10 +251,11 @@ static int chk_keys(const struct qw_config *c)
 	int rc = qw_auth_setup_load(c, &keys, err, sizeof err);
 
 	qw_auth_setup_free(&keys);
-	if (rc == 0)
-		return 0;
-	fprintf(stderr, "quadwatch check: %s\n", err);
-	return QW_EXIT_USAGE;
+	if (rc != 0) {
+		fprintf(stderr, "quadwatch check: %s\n", err);
+		return QW_EXIT_USAGE;
+	}
+	return chk_mqtt_files(c);
 }
 
 int qw_cmd_check(int argc, char **argv)

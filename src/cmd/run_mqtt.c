@@ -32,9 +32,9 @@ static int run_mqtt_same(const struct qw_mqtt_conf *a,
 	struct qw_mqtt_conf x = *a, y = *b;
 
 	x.line = x.input_line = x.alerts_line = x.ca_line = 0;
-	x.cert_line = x.key_line = x.reconnect_line = 0;
+	x.cert_line = x.key_line = x.reconnect_line = x.credentials_line = 0;
 	y.line = y.input_line = y.alerts_line = y.ca_line = 0;
-	y.cert_line = y.key_line = y.reconnect_line = 0;
+	y.cert_line = y.key_line = y.reconnect_line = y.credentials_line = 0;
 	return memcmp(&x, &y, sizeof x) == 0;
 }
 
@@ -71,6 +71,10 @@ int qw_run_mqtt_build(struct run_daemon *dm, const struct qw_config *cfg,
 	*reused = 0;
 	if (c->ninputs == 0 && !c->has_alerts)
 		return 0;
+	if (qw_config_mqtt_files(cfg, err, sizeof err) != 0) {
+		qw_log(QW_LOG_ERROR, "%s", err); /* exit 2 at start */
+		return QW_ERROR(QW_EFORMAT);
+	}
 	/* the same settings and the same user name and password (a changed
 	 * credentials file under the same name takes effect on reload) */
 	if (dm->mqtt.client != NULL && run_mqtt_same(qw_mqtt_conf(dm->mqtt.client), c) &&

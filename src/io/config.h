@@ -58,6 +58,7 @@ struct qw_mqtt_conf {
 	   set */
 	int line;                          /* of the first MQTT address */
 	int input_line, alerts_line, ca_line, cert_line, key_line;
+	int credentials_line;
 	int reconnect_line;
 };
 
@@ -113,6 +114,14 @@ const struct qw_group_conf *qw_config_group(const struct qw_config *cfg,
 /* 64-bit FNV-1a over what a learned model depends on: p and the channel
  * names in order.  Equal fingerprints: the model can be kept on reload. */
 uint64_t qw_config_fingerprint(const struct qw_group_conf *g);
+/* Checks the files of [mqtt] as the daemon will read them: ca_file,
+ * cert_file, key_file exist and are readable regular files, key_file and
+ * credentials are open to their owner only, credentials has its two lines.
+ * 0, or QW_EFORMAT/QW_EIO with "FILE:LINE: [mqtt] KEY: why" in err.  The
+ * daemon (at start and reload) and check call it; the parse does not, so
+ * the other verbs need no access to these files. */
+int qw_config_mqtt_files(const struct qw_config *cfg, char *err,
+			 size_t errlen);
 /* Reads an MQTT credentials file: the user name on its first line, the
  * password on the second (config_mqtt.c).  The file must be a regular file
  * readable by its owner only (mode 0600 or 0400).  0, or QW_EFORMAT/QW_EIO

@@ -9,8 +9,10 @@
  * the '+' matched, and an alert's topic is the alerts TOPIC with the group
  * name in place of '+'.  Every address names the same broker: the daemon
  * holds one connection.  Secrets never stand in the ini: it names a
- * credentials file whose mode this file checks, and the TLS files are
- * checked for existence (the private key for its mode too).
+ * credentials file.  The files named are checked apart from the parse
+ * (qw_config_mqtt_files), by the daemon and by check, as the daemon reads
+ * them (existence, the secrets' modes, the credentials' two lines), so
+ * replay, record and sim can read the same ini without access to them.
  *
  * Workload: a handful of keys at start and on reload. */
 #include <errno.h>
@@ -177,25 +179,40 @@ int cfg_mqtt_input(struct cfg_parse *ps, const char *s, size_t n)
 
 /* ---- files ------------------------------------------------------------- */
 
-/* A regular file we can read; secret: open to its owner only. */
-static int cfg_file(struct cfg_parse *ps, const char *v, int secret,
-		    char *dst, size_t cap)
+/* A path value into dst (checked later: qw_config_mqtt_files). */
+static int cfg_path(struct cfg_parse *ps, const char *v, char *dst,
+		    size_t cap, int *line)
 {
-	struct stat st;
 	size_t n = strlen(v);
 
 	if (n == 0 || n >= cap)
 		return cfg_bad(ps, "expected a file path of 1 to %zu bytes",
 			       cap - 1);
-	if (stat(v, &st) != 0 || access(v, R_OK) != 0)
-		return cfg_bad(ps, "%s: %s", v, strerror(errno));
-	if (!S_ISREG(st.st_mode))
-		return cfg_bad(ps, "%s: expected a regular file", v);
-	if (secret && (st.st_mode & 077) != 0)
-		return cfg_bad(ps, "%s: secret file is open to group or others "
-				   "(mode %04o); refusing it: chmod 600 %s", v,
-			       (unsigned)(st.st_mode & 07777), v);
 	memcpy(dst, v, n + 1);
+	*line = ps->key_at;
+	return 0;
+}
+
+/* A regular file we can read; secret: open to its owner only.  0, or -1
+ * with the reason in why. */
+static int cfg_file_ok(const char *path, int secret, char *why, size_t cap)
+{
+	struct stat st;
+
+	if (stat(path, &st) != 0 || access(path, R_OK) != 0) {
+		snprintf(why, cap, "%s: %s", path, strerror(errno));
+		return -1;
+	}
+	if (!S_ISREG(st.st_mode)) {
+		snprintf(why, cap, "%s: expected a regular file", path);
+		return -1;
+	}
+	if (secret && (st.st_mode & 077) != 0) {
+		snprintf(why, cap, "%s: secret file is open to group or others "
+			 "(mode %04o); refusing it: chmod 600 %s", path,
+			 (unsigned)(st.st_mode & 07777), path);
+		return -1;
+	}
 	return 0;
 }
 
@@ -339,45 +356,32 @@ static int mqtt_reconnect_max(struct cfg_parse *ps, const char *v)
 
 static int mqtt_ca_file(struct cfg_parse *ps, const char *v)
 {
-	ps->cfg->mqtt.ca_line = ps->key_at;
-	return cfg_file(ps, v, 0, ps->cfg->mqtt.ca_file,
-			sizeof ps->cfg->mqtt.ca_file);
+	struct qw_mqtt_conf *m = &ps->cfg->mqtt;
+
+	return cfg_path(ps, v, m->ca_file, sizeof m->ca_file, &m->ca_line);
 }
 
 static int mqtt_cert_file(struct cfg_parse *ps, const char *v)
 {
-	ps->cfg->mqtt.cert_line = ps->key_at;
-	return cfg_file(ps, v, 0, ps->cfg->mqtt.cert_file,
-			sizeof ps->cfg->mqtt.cert_file);
+	struct qw_mqtt_conf *m = &ps->cfg->mqtt;
+
+	return cfg_path(ps, v, m->cert_file, sizeof m->cert_file,
+			&m->cert_line);
 }
 
 static int mqtt_key_file(struct cfg_parse *ps, const char *v)
 {
-	ps->cfg->mqtt.key_line = ps->key_at;
-	return cfg_file(ps, v, 1, ps->cfg->mqtt.key_file,
-			sizeof ps->cfg->mqtt.key_file);
+	struct qw_mqtt_conf *m = &ps->cfg->mqtt;
+
+	return cfg_path(ps, v, m->key_file, sizeof m->key_file, &m->key_line);
 }
 
-/* The file is read here to check it, then wiped; the daemon reads it
- * again when it connects. */
 static int mqtt_credentials(struct cfg_parse *ps, const char *v)
 {
-	char user[QW_CONFIG_SECRET_MAX], pass[QW_CONFIG_SECRET_MAX];
-	char err[QW_CONFIG_ERR_MAX];
-	size_t n = strlen(v);
-	int rc;
+	struct qw_mqtt_conf *m = &ps->cfg->mqtt;
 
-	if (n == 0 || n >= sizeof ps->cfg->mqtt.credentials)
-		return cfg_bad(ps, "expected a file path of 1 to %zu bytes",
-			       sizeof ps->cfg->mqtt.credentials - 1);
-	rc = qw_config_mqtt_credentials(v, user, sizeof user, pass,
-					sizeof pass, err, sizeof err);
-	explicit_bzero(user, sizeof user);
-	explicit_bzero(pass, sizeof pass);
-	if (rc != 0)
-		return cfg_bad(ps, "%s", err);
-	memcpy(ps->cfg->mqtt.credentials, v, n + 1);
-	return 0;
+	return cfg_path(ps, v, m->credentials, sizeof m->credentials,
+			&m->credentials_line);
 }
 
 const struct cfg_key cfg_mqtt_keys[] = {
@@ -446,4 +450,42 @@ int cfg_mqtt_finish(struct cfg_parse *ps, int section_line)
 				     "expected cert_file and key_file together "
 				     "(a client certificate and its key)");
 	return 0;
+}
+
+/* ---- the files, as the daemon reads them ---------------------------------- */
+
+int qw_config_mqtt_files(const struct qw_config *cfg, char *err,
+			 size_t errlen)
+{
+	const struct qw_mqtt_conf *m = &cfg->mqtt;
+	char user[QW_CONFIG_SECRET_MAX], pass[QW_CONFIG_SECRET_MAX];
+	char why[QW_CONFIG_ERR_MAX];
+	const struct {
+		const char *key, *path;
+		int line, secret;
+	} f[] = {
+		{"ca_file", m->ca_file, m->ca_line, 0},
+		{"cert_file", m->cert_file, m->cert_line, 0},
+		{"key_file", m->key_file, m->key_line, 1},
+	};
+	size_t i;
+	int rc;
+
+	for (i = 0; i < sizeof f / sizeof f[0]; i++)
+		if (f[i].path[0] != '\0' &&
+		    cfg_file_ok(f[i].path, f[i].secret, why, sizeof why) != 0) {
+			qw_errbuf(err, errlen, "%s:%d: [mqtt] %s: %s", cfg->path,
+				  f[i].line, f[i].key, why);
+			return QW_ERROR(QW_EFORMAT);
+		}
+	if (m->credentials[0] == '\0')
+		return 0;
+	rc = qw_config_mqtt_credentials(m->credentials, user, sizeof user,
+					pass, sizeof pass, why, sizeof why);
+	explicit_bzero(user, sizeof user);
+	explicit_bzero(pass, sizeof pass);
+	if (rc != 0)
+		qw_errbuf(err, errlen, "%s:%d: [mqtt] credentials: %s",
+			  cfg->path, m->credentials_line, why);
+	return rc;
 }

@@ -15,7 +15,8 @@ over ZeroMQ.  Checked:
      counted, and readings flow again;
   5. a reload with the same MQTT settings keeps the session; a changed
      setting (qos) makes a new connection, counters and models kept;
-  6. with no broker at all, attempts back off (doubling), the daemon runs.
+  6. ZeroMQ inputs with alerts published on MQTT too ([mqtt] alerts alone);
+  7. with no broker at all, attempts back off (doubling), the daemon runs.
 Run with /usr/bin/python3."""
 
 import json
@@ -192,15 +193,42 @@ def main():
     qt.note("mqtt: reload kept the session when unchanged, reconnected "
             "when changed")
     cl.close()
-    watch.close()
     rc, took = d.stop()
     qt.check(rc == 0, "daemon exit %d" % rc)
+    alerts_only(broker, watch)
+    watch.close()
     backoff()
     print("ok")
 
 
+def alerts_only(broker, watch):
+    """6: ZeroMQ inputs only, alerts also on MQTT ([mqtt] alerts alone)."""
+    tmp = qt.tmpdir()
+    pub = qt.Publisher()
+    extra = "\n".join(["", "[mqtt]",
+                       "alerts = mqtt://127.0.0.1:%d/site2/+/alerts" %
+                       broker.port])
+    d = qt.Daemon(tmp, qt.ini(tmp, {"pump": qt.skid_group()},
+                              [">" + pub.endpoint], extra=extra), "alerts")
+    qm.wait_mqtt(d, lambda m: m["connected"], "alerts-only connection")
+    watch.subscribe("site2/+/alerts")
+    pub.wait_sub("pump")
+    n0 = len(watch.messages())
+    t, x = qt.skid_readings(N, seed=11, fault=FAULT)
+    qt.send_stream(pub, "pump", t, x, "binary")
+    st = d.wait_readings("pump", N)
+    got = [(tp, json.loads(p)) for tp, p in watch.wait_messages(n0 + 1)[n0:]]
+    qt.check(got and got[0][0] == "site2/pump/alerts" and
+             got[0][1]["event"] == "raise", "no MQTT alert: %r" % got)
+    qt.check(st["mqtt"]["subscribed"] == 0 and st["mqtt"]["received"] == 0,
+             "an alerts-only client subscribed: %r" % st["mqtt"])
+    qt.note("mqtt: ZeroMQ input, alert on MQTT (%s)" % got[0][0])
+    d.stop()
+    pub.close()
+
+
 def backoff():
-    """6: no broker at all: attempts back off, doubling from reconnect_min
+    """7: no broker at all: attempts back off, doubling from reconnect_min
     to reconnect_max.  0.1 s doubling to 1.6 s starts attempts at about
     0, 0.1, 0.3, 0.7, 1.5, 3.1 s (each up to one 0.25 s poll tick late):
     6 within SPAN s, where a retry every tick would make some 16."""

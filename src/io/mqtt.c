@@ -244,6 +244,18 @@ uint64_t qw_mqtt_secret_sig(const qw_mqtt *m)
 	return m->secret_sig;
 }
 
+/* OpenSSL's passphrase callback: none.  Without it OpenSSL would prompt
+ * on the terminal for an encrypted key and the daemon's loop would wait;
+ * with it such a key fails to load, a counted and logged failure. */
+static int mqtt_no_passphrase(char *buf, int size, int rwflag, void *user)
+{
+	(void)buf;
+	(void)size;
+	(void)rwflag;
+	(void)user;
+	return 0;
+}
+
 /* TLS and credentials on a new client. */
 static int mqtt_secure(qw_mqtt *m, char *err, size_t errlen)
 {
@@ -257,7 +269,7 @@ static int mqtt_secure(qw_mqtt *m, char *err, size_t errlen)
 				       c->ca_file[0] ? NULL : MQTT_SYSTEM_CA,
 				       c->cert_file[0] ? c->cert_file : NULL,
 				       c->key_file[0] ? c->key_file : NULL,
-				       NULL);
+				       mqtt_no_passphrase);
 		if (rc != MOSQ_ERR_SUCCESS) {
 			qw_errbuf(err, errlen, "TLS files refused: %s",
 				  mosquitto_strerror(rc));

@@ -10,7 +10,8 @@
  *    or a name the resolver answers at once (getaddrinfo blocks);
  *  - service: mosquitto_loop_read while the socket is readable, one MQTT
  *    packet per call, up to MQTT_READ_MAX packets per wake-up so a busy
- *    broker cannot starve the rest of the loop; mosquitto_loop_write when
+ *    broker cannot starve the rest of the loop (and while a call still
+ *    delivers: TLS may hold a message poll cannot see); mosquitto_loop_write when
  *    the library has bytes queued; mosquitto_loop_misc for the keepalive;
  *  - back-off: after a failed attempt or a lost session the next attempt
  *    waits reconnect_min, doubling on each failure up to reconnect_max,
@@ -41,6 +42,8 @@
 #include "quadwatch.h"
 
 #define MQTT_READ_MAX 256      /* packets read per service call */
+#define MQTT_IDLE_READS 2      /* reads in a row with no message that end
+				  a service call's reading */
 #define MQTT_CONNECT_TIMEOUT 10.0 /* s: an attempt with no CONNACK by then
 				     is abandoned (a silent host) */
 #define MQTT_SYSTEM_CA "/etc/ssl/certs" /* Debian's CA directory, used for
@@ -376,18 +379,21 @@ static void mqtt_attempt(qw_mqtt *m, double now)
 	}
 }
 
-/* Reads up to MQTT_READ_MAX packets, stopping at the first call that
- * delivers no message (nothing more waiting, or a control packet). */
+/* Reads up to MQTT_READ_MAX packets, one per call, until MQTT_IDLE_READS
+ * calls in a row deliver no message (nothing more waiting, or only
+ * control packets).  More than one: under TLS a whole message may wait in
+ * the library's TLS buffer, where poll cannot see it, behind a control
+ * packet such as a PINGRESP. */
 static int mqtt_read(qw_mqtt *m)
 {
-	int k, rc = MOSQ_ERR_SUCCESS;
+	int k, idle = 0, rc = MOSQ_ERR_SUCCESS;
 
-	for (k = 0; k < MQTT_READ_MAX; k++) {
+	for (k = 0; k < MQTT_READ_MAX && idle < MQTT_IDLE_READS; k++) {
 		m->delivered = 0;
 		rc = mosquitto_loop_read(m->mosq, 1);
-		if (rc != MOSQ_ERR_SUCCESS || m->delivered == 0 ||
-		    mosquitto_socket(m->mosq) < 0)
+		if (rc != MOSQ_ERR_SUCCESS || mosquitto_socket(m->mosq) < 0)
 			break;
+		idle = m->delivered == 0 ? idle + 1 : 0;
 	}
 	return rc;
 }

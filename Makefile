@@ -8,7 +8,7 @@
 
 BUILD    ?= build
 CC       ?= cc
-PKGS     := libzmq gsl inih jansson
+PKGS     := libzmq gsl inih jansson libmosquitto
 WARN     := -Wall -Wextra -Wshadow -Wconversion -Wstrict-prototypes \
             -Wmissing-prototypes -Wformat=2
 # CI builds with warnings as errors; WERROR=0 to relax locally.

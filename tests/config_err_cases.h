@@ -195,6 +195,77 @@ static const struct err_case err_cases[] = {
 	 "t.ini:2: expected 'key = value'"},
 	{"[group a]\nchannels = x\nfloor = 1, 2\ngarbage\n",
 	 "t.ini:3: [group a] floor: expected 1 value (one channel), got 2"},
+	/* MQTT: addresses in [bus] input, the [mqtt] section, across keys
+	 * (the files named are checked apart: test_mqtt_files) */
+#define MB "[bus]\ninput = mqtt://127.0.0.1:1883/plant/+/readings\n" /* 1-2 */
+	{"[bus]\ninput = mqtt://127.0.0.1:1883/plant/readings\n" G,
+	 "t.ini:2: [bus] input: expected exactly one '+' level in the topic "
+	 "(it stands for the group name), got 'plant/readings'"},
+	{"[bus]\ninput = mqtt://127.0.0.1:1883\n" G, "t.ini:2: [bus] input: "
+	 "expected mqtt://HOST[:PORT]/TOPIC, got 'mqtt://127.0.0.1:1883' (no "
+	 "topic)"},
+	{"[bus]\ninput = mqtt://127.0.0.1:99999/a/+\n" G, "t.ini:2: [bus] "
+	 "input: expected a port from 1 to 65535, got '99999'"},
+	{"[bus]\ninput = mqtt://127.0.0.1:/a/+\n" G, "t.ini:2: [bus] input: "
+	 "expected a port from 1 to 65535, got ''"},
+	{"[bus]\ninput = mqtt://:1883/a/+\n" G, "t.ini:2: [bus] input: "
+	 "expected a broker host before the topic"},
+	{"[bus]\ninput = mqtt://[::1/a/+\n" G, "t.ini:2: [bus] input: "
+	 "expected ']' after an IPv6 address"},
+	{"[bus]\ninput = mqtt://h/a/#\n" G, "t.ini:2: [bus] input: expected a "
+	 "topic without '#', blanks or control characters, got 'a/#'"},
+	{"[bus]\ninput = mqtt://h/+/+\n" G, "t.ini:2: [bus] input: expected "
+	 "exactly one '+' level"},
+	{"[bus]\ninput = mqtt://h/a+/+\n" G, "t.ini:2: [bus] input: expected "
+	 "'+' only as a whole topic level, got 'a+/+'"},
+	{"[bus]\ninput = mqtt://h/\n" G, "t.ini:2: [bus] input: expected a "
+	 "topic of 1 to 255 bytes after the broker"},
+	{"[bus]\ninput = mqtt://h/a/+, mqtt://h:1884/b/+\n" G, "t.ini:2: [bus] "
+	 "input: expected every mqtt:// input on one broker (h:1883); "
+	 "'mqtt://h:1884/b/+' names another"},
+	{"[bus]\ninput = mqtt://h/a/+, mqtts://h/b/+\n" G, "t.ini:2: [bus] "
+	 "input: expected every mqtt:// input on one broker"},
+	{"[bus]\ninput = mqtt://h/a/+, >tcp://h:1, mqtt://h/a/+\n" G,
+	 "t.ini:2: [bus] input: expected each topic once; 'a/+' is listed "
+	 "twice"},
+	{MB "[mqtt]\nqos = 2\n" G, "t.ini:4: [mqtt] qos: expected 0 (at most "
+	 "once) or 1 (at least once), got '2'"},
+	{MB "[mqtt]\nqos = one\n" G, "t.ini:4: [mqtt] qos: expected 0"},
+	{"[mqtt]\nqos = 1\n" G, "t.ini:1: [mqtt]: expected an mqtt:// item in "
+	 "[bus] input or an alerts address; no broker is named"},
+	{MB "[mqtt]\ncredentials =\n" G, "t.ini:4: [mqtt] credentials: "
+	 "expected a file path"},
+	{MB "[mqtt]\nkey_file =\n" G, "t.ini:4: [mqtt] key_file: expected a "
+	 "file path"},
+	{MB "[mqtt]\nca_file = /etc/passwd\n" G, "t.ini:4: [mqtt] ca_file: "
+	 "expected an mqtts:// broker (TLS); the broker is named with "
+	 "mqtt://"},
+	{"[bus]\ninput = mqtts://h/p/+\n[mqtt]\ncert_file = /etc/passwd\n" G,
+	 "t.ini:4: [mqtt] cert_file: expected cert_file and key_file together"},
+	{MB "[mqtt]\nalerts = mqtt://other:1883/plant/+/alerts\n" G,
+	 "t.ini:4: [mqtt] alerts: expected the broker of the mqtt:// inputs "
+	 "(one connection)"},
+	{MB "[mqtt]\nalerts = tcp://127.0.0.1:1883/plant/+\n" G, "t.ini:4: "
+	 "[mqtt] alerts: expected mqtt://HOST[:PORT]/TOPIC or mqtts://..., "
+	 "got 'tcp://127.0.0.1:1883/plant/+'"},
+	{MB "[mqtt]\nalerts = mqtt://127.0.0.1:1883/plant/alerts\n" G,
+	 "t.ini:4: [mqtt] alerts: expected exactly one '+' level"},
+	{MB "[mqtt]\nkeepalive = 1s\n" G, "t.ini:4: [mqtt] keepalive: "
+	 "expected a duration from 5 s to 65535 s, such as 0.5, 30s or 2min, "
+	 "got '1s'"},
+	{MB "[mqtt]\nreconnect_min = 10s\nreconnect_max = 1s\n" G,
+	 "t.ini:5: [mqtt] reconnect_min: expected reconnect_min <= "
+	 "reconnect_max"},
+	{MB "[mqtt]\nreconnect_max = 2h\n" G, "t.ini:4: [mqtt] reconnect_max: "
+	 "expected a duration from 0.01 s to 3600 s"},
+	{MB "[mqtt]\nclient_id = a\"b\x01\n" G, "t.ini:4: [mqtt] client_id: "
+	 "expected a client id of printable characters, no blanks"},
+	{MB "[mqtt]\nqos = 1\n[mqtt]\n" G, "t.ini:5: [mqtt]: expected each "
+	 "section once; first on line 3"},
+	{MB "[mqtt]\nport = 1883\n" G, "t.ini:4: [mqtt] port: unknown key; "
+	 "expected one of alerts, qos, client_id, keepalive, reconnect_min, "
+	 "reconnect_max, ca_file, cert_file, key_file, credentials"},
+#undef MB
 };
 
 #endif

@@ -7,7 +7,9 @@
  * - Defaults, duration units, endpoints (@ binds, > connects), list
  *   continuation, floors, the fingerprint (against an independent FNV-1a).
  * - The groups owned ([bus] groups, or -g through qw_config_load_owned):
- *   the others dropped, the kept ones whole and in file order. */
+ *   the others dropped, the kept ones whole and in file order.
+ * - MQTT: addresses in [bus] input beside ZeroMQ endpoints, the [mqtt]
+ *   keys and their defaults, the credentials file and its mode. */
 #include <stdarg.h>
 #include <stddef.h>
 #include <setjmp.h>
@@ -18,6 +20,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "config.h"
@@ -649,6 +652,168 @@ static void test_owned(void **state)
 	unlink(name);
 }
 
+/* mqtt:// items of [bus] input go to cfg.mqtt, ZeroMQ items stay inputs;
+ * the [mqtt] keys; defaults; the URL's parts and its '+' level. */
+static void test_mqtt(void **state)
+{
+	char text[1024], err[QW_CONFIG_ERR_MAX];
+	char *cred = temp_file("plant-reader\r\ns3cret pass\n", 26);
+	char credpath[64];
+	struct qw_config c;
+	const struct qw_mqtt_conf *m = &c.mqtt;
+
+	(void)state;
+	snprintf(credpath, sizeof credpath, "%s", cred);
+	snprintf(text, sizeof text,
+		 "[bus]\ninput = >tcp://127.0.0.1:5601, "
+		 "mqtts://[::1]:18883/site/plant/+/readings,\n"
+		 "  mqtts://[::1]:18883/+/v\n"
+		 "[mqtt]\nalerts = mqtts://[::1]:18883/site/+/alerts\n"
+		 "qos = 1\nclient_id = qw-plant\nkeepalive = 2min\n"
+		 "reconnect_min = 0.25\nreconnect_max = 1min\n"
+		 "ca_file = /etc/passwd\ncredentials = %s\n"
+		 "[group chiller1]\nchannels = x, y\n", credpath);
+	assert_int_equal(qw_config_load_string(text, "t.ini", &c, err,
+					       sizeof err), 0);
+	assert_int_equal(c.ninputs, 1);
+	assert_string_equal(c.inputs[0].addr, "tcp://127.0.0.1:5601");
+	assert_int_equal(m->ninputs, 2);
+	assert_int_equal(m->inputs[0].tls, 1);
+	assert_string_equal(m->inputs[0].host, "::1");
+	assert_int_equal(m->inputs[0].port, 18883);
+	assert_string_equal(m->inputs[0].topic, "site/plant/+/readings");
+	assert_int_equal(m->inputs[0].level, 2);
+	assert_string_equal(m->inputs[1].topic, "+/v");
+	assert_int_equal(m->inputs[1].level, 0);
+	assert_int_equal(m->has_alerts, 1);
+	assert_int_equal(m->alerts.level, 1);
+	assert_int_equal(m->qos, 1);
+	assert_string_equal(m->client_id, "qw-plant");
+	assert_true(m->keepalive == 120.0);
+	assert_true(m->reconnect_min == 0.25 && m->reconnect_max == 60.0);
+	assert_string_equal(m->ca_file, "/etc/passwd");
+	assert_string_equal(m->credentials, credpath);
+	assert_int_equal(m->line, 2);
+	qw_config_free(&c);
+	/* only MQTT: no default ZeroMQ input is added; defaults */
+	load_ok("[bus]\ninput = mqtt://broker.plant/p/+\n"
+		"[group g]\nchannels = x\n", &c);
+	assert_int_equal(c.ninputs, 0);
+	assert_int_equal(m->ninputs, 1);
+	assert_int_equal(m->inputs[0].port, 1883);
+	assert_int_equal(m->inputs[0].tls, 0);
+	assert_string_equal(m->inputs[0].host, "broker.plant");
+	assert_int_equal(m->qos, 0);
+	assert_int_equal(m->has_alerts, 0);
+	assert_true(m->keepalive == 30.0);
+	assert_true(m->reconnect_min == 0.5 && m->reconnect_max == 30.0);
+	qw_config_free(&c);
+	load_ok("[bus]\ninput = mqtts://h/p/+\n[group g]\nchannels = x\n",
+		&c);
+	assert_int_equal(m->inputs[0].port, 8883);
+	qw_config_free(&c);
+	/* no MQTT at all: nothing set, the ZeroMQ default input */
+	load_ok("[group g]\nchannels = x\n", &c);
+	assert_int_equal(m->ninputs, 0);
+	assert_int_equal(c.ninputs, 1);
+	qw_config_free(&c);
+	unlink(credpath);
+}
+
+/* The files of [mqtt], checked apart from the parse as the daemon reads
+ * them: each error names the file, the line of its key and the key. */
+static void test_mqtt_files(void **state)
+{
+	static const char head[] = "[bus]\ninput = mqtts://127.0.0.1/p/+\n"
+				   "[mqtt]\n";
+	char text[512], err[QW_CONFIG_ERR_MAX], cred[64];
+	struct qw_config c;
+	const struct {
+		const char *keys, *want;
+	} bad[] = {
+		{"ca_file = /nonexistent/ca.pem\n", "t.ini:4: [mqtt] ca_file: "
+		 "/nonexistent/ca.pem: No such file or directory"},
+		{"qos = 1\nca_file = /etc\n", "t.ini:5: [mqtt] ca_file: /etc: "
+		 "expected a regular file"},
+		{"cert_file = /etc/passwd\nkey_file = /etc/passwd\n",
+		 "t.ini:5: [mqtt] key_file: /etc/passwd: secret file is open to "
+		 "group or others (mode 0644); refusing it: chmod 600 "
+		 "/etc/passwd"},
+		{"credentials = /nonexistent/qw.cred\n", "t.ini:4: [mqtt] "
+		 "credentials: /nonexistent/qw.cred: No such file or directory"},
+	};
+	size_t i;
+
+	(void)state;
+	for (i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+		snprintf(text, sizeof text, "%s%s[group g]\nchannels = x\n",
+			 head, bad[i].keys);
+		/* the parse takes the paths as they are... */
+		assert_int_equal(qw_config_load_string(text, "t.ini", &c, err,
+						       sizeof err), 0);
+		/* ...the check refuses them */
+		assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err),
+				 QW_EFORMAT);
+		if (strcmp(err, bad[i].want) != 0)
+			fail_msg("case %zu:\n  got:  %s\n  want: %s", i, err,
+				 bad[i].want);
+		qw_config_free(&c);
+	}
+	/* a credentials file open to others, then fixed */
+	snprintf(cred, sizeof cred, "%s", temp_file("u\np\n", 4));
+	assert_int_equal(chmod(cred, 0644), 0);
+	snprintf(text, sizeof text, "%scredentials = %s\n[group g]\n"
+		 "channels = x\n", head, cred);
+	load_ok(text, &c);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err),
+			 QW_EFORMAT);
+	assert_non_null(strstr(err, "t.ini:4: [mqtt] credentials: "));
+	assert_non_null(strstr(err, "(mode 0644); refusing it: chmod 600"));
+	assert_int_equal(chmod(cred, 0600), 0);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err), 0);
+	qw_config_free(&c);
+	unlink(cred);
+	/* no MQTT, nothing to check */
+	load_ok("[group g]\nchannels = x\n", &c);
+	assert_int_equal(qw_config_mqtt_files(&c, err, sizeof err), 0);
+	qw_config_free(&c);
+}
+
+/* The credentials file: two lines (CRLF too), owner-only mode. */
+static void test_mqtt_credentials(void **state)
+{
+	char user[QW_CONFIG_SECRET_MAX], pass[QW_CONFIG_SECRET_MAX];
+	char err[QW_CONFIG_ERR_MAX], path[64];
+
+	(void)state;
+	snprintf(path, sizeof path, "%s", temp_file("u1\r\np w\r\n", 9));
+	assert_int_equal(qw_config_mqtt_credentials(path, user, sizeof user,
+						    pass, sizeof pass, err,
+						    sizeof err), 0);
+	assert_string_equal(user, "u1");
+	assert_string_equal(pass, "p w");
+	assert_int_equal(chmod(path, 0640), 0);
+	assert_int_equal(qw_config_mqtt_credentials(path, user, sizeof user,
+						    pass, sizeof pass, err,
+						    sizeof err), QW_EFORMAT);
+	assert_non_null(strstr(err, "credentials file is open to group or "
+				    "others (mode 0640); refusing it"));
+	assert_int_equal(user[0], '\0'); /* wiped */
+	unlink(path);
+	snprintf(path, sizeof path, "%s", temp_file("only-a-user\n", 12));
+	assert_int_equal(qw_config_mqtt_credentials(path, user, sizeof user,
+						    pass, sizeof pass, err,
+						    sizeof err), QW_EFORMAT);
+	assert_non_null(strstr(err, "expected a user name on line 1 and a "
+				    "password on line 2"));
+	unlink(path);
+	assert_int_equal(qw_config_mqtt_credentials("/nonexistent/c", user,
+						    sizeof user, pass,
+						    sizeof pass, err,
+						    sizeof err), QW_EFORMAT);
+	assert_string_equal(err, "/nonexistent/c: No such file or directory");
+}
+
 #ifdef TEST_ALLOC_FAIL
 /* Every allocation of a load fails in turn: QW_ENOMEM with "out of memory"
  * (or, for the parts that degrade, a clean result), nothing leaked. */
@@ -708,6 +873,9 @@ int main(void)
 		cmocka_unit_test(test_max_channels),
 		cmocka_unit_test(test_file_errors),
 		cmocka_unit_test(test_owned),
+		cmocka_unit_test(test_mqtt),
+		cmocka_unit_test(test_mqtt_credentials),
+		cmocka_unit_test(test_mqtt_files),
 #ifdef TEST_ALLOC_FAIL
 		cmocka_unit_test(test_alloc_failure),
 #endif

@@ -82,6 +82,33 @@ static void chk_owned(const struct qw_config *c)
 		chk_kv(0, "selection", "none (every group)");
 }
 
+static void chk_mqtt_url(const char *key, const struct qw_mqtt_url *u)
+{
+	int v6 = strchr(u->host, ':') != NULL;
+
+	chk_kv(0, key, "%s://%s%s%s:%d/%s", u->tls ? "mqtts" : "mqtt",
+	       v6 ? "[" : "", u->host, v6 ? "]" : "", u->port, u->topic);
+}
+
+/* The MQTT inputs, alerts and settings, when a broker is named. */
+static void chk_mqtt(const struct qw_mqtt_conf *m)
+{
+	size_t i;
+
+	if (m->ninputs == 0 && !m->has_alerts)
+		return;
+	for (i = 0; i < m->ninputs; i++)
+		chk_mqtt_url("input", &m->inputs[i]);
+	if (m->has_alerts)
+		chk_mqtt_url("mqtt_alerts", &m->alerts);
+	chk_kv(0, "mqtt", "qos %d, keepalive %.10g s, reconnect %.10g to "
+	       "%.10g s, %s session%s%s", m->qos, m->keepalive,
+	       m->reconnect_min, m->reconnect_max,
+	       m->client_id[0] ? "kept" : "clean",
+	       m->credentials[0] ? ", credentials from a file" : "",
+	       m->cert_file[0] ? ", client certificate" : "");
+}
+
 static void chk_daemon(const struct qw_config *c)
 {
 	size_t i;
@@ -89,6 +116,7 @@ static void chk_daemon(const struct qw_config *c)
 	chk_kv(0, "config", "%s", c->path);
 	for (i = 0; i < c->ninputs; i++)
 		chk_endpoint("input", &c->inputs[i]);
+	chk_mqtt(&c->mqtt);
 	chk_endpoint("alerts", &c->alerts);
 	chk_endpoint("control", &c->control);
 	chk_kv(0, "stats_every", "%.10g s", c->stats_every);
@@ -228,6 +256,17 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	return 0;
 }
 
+/* The [mqtt] files (TLS, credentials) as the daemon would read them. */
+static int chk_mqtt_files(const struct qw_config *c)
+{
+	char err[QW_CONFIG_ERR_MAX];
+
+	if (qw_config_mqtt_files(c, err, sizeof err) == 0)
+		return 0;
+	fprintf(stderr, "quadwatch check: %s\n", err);
+	return QW_EXIT_USAGE;
+}
+
 /* The [security] key files load as the daemon would load them (modes,
  * formats, the allow-list), so `check` before a start catches a bad key. */
 static int chk_keys(const struct qw_config *c)
@@ -237,10 +276,11 @@ static int chk_keys(const struct qw_config *c)
 	int rc = qw_auth_setup_load(c, &keys, err, sizeof err);
 
 	qw_auth_setup_free(&keys);
-	if (rc == 0)
-		return 0;
-	fprintf(stderr, "quadwatch check: %s\n", err);
-	return QW_EXIT_USAGE;
+	if (rc != 0) {
+		fprintf(stderr, "quadwatch check: %s\n", err);
+		return QW_EXIT_USAGE;
+	}
+	return chk_mqtt_files(c);
 }
 
 int qw_cmd_check(int argc, char **argv)

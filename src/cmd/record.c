@@ -146,6 +146,14 @@ static int rc_open(struct rc_ctx *c, const struct rc_opts *ro)
 	size_t i;
 	int rc;
 
+	if (c->cfg.mqtt.ninputs > 0)
+		qw_log(QW_LOG_WARN, "%s: mqtt:// inputs are not recorded; "
+		       "record captures the ZeroMQ inputs", c->cfg.path);
+	if (c->cfg.ninputs == 0) {
+		qw_log(QW_LOG_ERROR, "%s: no ZeroMQ input to record",
+		       c->cfg.path);
+		return QW_EXIT_USAGE;
+	}
 	c->bus = qw_bus_alloc();
 	c->poller = qw_bus_poller_alloc(c->cfg.ninputs);
 	c->msg.body_cap = c->cfg.max_frame;

@@ -159,6 +159,7 @@ static int run_loop(struct run_daemon *dm, struct run_notify *rn)
 
 	while (!run_stop) {
 		run_step_reload(dm, rn);
+		qw_run_mqtt_arm(dm);
 		rc = qw_bus_poll(dm->poller, run_timeout_ms(dm, rn));
 		if (rc < 0) {
 			qw_log(QW_LOG_ERROR, "poll: %s", qw_bus_strerror());
@@ -166,6 +167,7 @@ static int run_loop(struct run_daemon *dm, struct run_notify *rn)
 		}
 		if (rc == 0)
 			run_step_sockets(dm);
+		qw_run_mqtt_step(dm);
 		run_step_timers(dm);
 		qw_run_notify_tick(rn, dm);
 	}
@@ -193,7 +195,7 @@ int qw_cmd_run(int argc, char **argv)
 		return rc == QW_EFORMAT ? QW_EXIT_USAGE : QW_EXIT_FAIL;
 	}
 	qw_log(QW_LOG_INFO, "running %s: %zu groups, %zu inputs", path,
-	       dm.cfg.ngroups, dm.cfg.ninputs);
+	       dm.cfg.ngroups, dm.cfg.ninputs + dm.cfg.mqtt.ninputs);
 	qw_run_notify_open(&rn);
 	qw_run_notify_ready(&rn, &dm); /* bound, connected, restored */
 	rc = run_loop(&dm, &rn);

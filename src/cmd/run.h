@@ -4,6 +4,7 @@
  *   run_ingest.c   one bus message: topic, decode, gaps, score, alert
  *   run_report.c   control requests, status and stats JSON
  *   run_checkpoint.c  checkpoints: save on timer/stop/ctl, restore
+ *   run_mqtt.c     the MQTT connection: inputs, alerts, counters
  * Private to src/cmd/run*.c. */
 #ifndef QW_RUN_H
 #define QW_RUN_H
@@ -17,6 +18,7 @@
 #include "bus.h"
 #include "config.h"
 #include "log.h"
+#include "mqtt.h"
 #include "quadwatch.h"
 #include "wire.h"
 
@@ -108,6 +110,20 @@ struct run_secure {
 	uint64_t signature;          /* FNV-1a over the keys in force */
 };
 
+/* The MQTT connection (run_mqtt.c); client NULL when no broker is set.
+ * Message counters live here, beside the ZeroMQ totals in run_totals
+ * (each MQTT message is counted in both); connection counters come from
+ * the client, plus those of clients replaced by reloads. */
+struct run_mqtt {
+	qw_mqtt *client;
+	uint64_t received;                  /* messages off the broker */
+	uint64_t decoded;                   /* of those, decoded */
+	uint64_t rejected[RUN_WIRE_CAUSES]; /* of those, refused by cause */
+	struct qw_mqtt_counts base;         /* of replaced clients */
+	struct qw_mqtt_counts seen;         /* of this client, logged */
+	struct qw_log_limit log;            /* failed attempts */
+};
+
 /* Topic -> group index: open addressing, FNV-1a, power-of-two slots. */
 struct run_topics {
 	size_t *slot;   /* group index + 1; 0 = empty */
@@ -143,6 +159,7 @@ struct run_daemon {
 	double started;              /* monotonic s */
 	double next_stats;           /* monotonic s; 0 = off */
 	double next_checkpoint;      /* monotonic s; 0 = off */
+	struct run_mqtt mqtt;        /* MQTT inputs and alerts */
 };
 
 /* run_setup.c */
@@ -183,6 +200,33 @@ void qw_run_alert(struct run_daemon *dm, struct run_group *g, double t,
 		  const struct qw_result *res);
 /* Publishes a clear for group g after an operator re-baseline. */
 void qw_run_alert_rebaseline(struct run_daemon *dm, struct run_group *g);
+
+/* run_mqtt.c */
+/* The client for cfg's broker: the running one when its settings are
+ * unchanged (*reused = 1), a new one, or NULL when cfg names no broker.
+ * 0, or QW_EFORMAT/QW_ENOMEM with the reason logged. */
+int qw_run_mqtt_build(struct run_daemon *dm, const struct qw_config *cfg,
+		      qw_mqtt **out, int *reused);
+/* Installs client (from qw_run_mqtt_build); a replaced one is freed and
+ * its counters kept. */
+void qw_run_mqtt_commit(struct run_daemon *dm, qw_mqtt *client, int reused);
+/* Before each poll: the connection's socket into the poller. */
+void qw_run_mqtt_arm(struct run_daemon *dm);
+/* After each poll: reads, writes, keepalive, reconnects; logs changes. */
+void qw_run_mqtt_step(struct run_daemon *dm);
+/* Publishes an alert of group on MQTT when [mqtt] alerts is set. */
+void qw_run_mqtt_alert(struct run_daemon *dm, const char *group,
+		       const char *body, size_t len);
+/* Adds the "mqtt" counters object to a status or stats object (nothing
+ * when no broker is set). */
+struct json_t;
+void qw_run_mqtt_report(const struct run_daemon *dm, struct json_t *o);
+
+/* run_ingest.c */
+/* One message m from any input (frame 1 topic, frame 2 payload):
+ * counted, decoded and scored.  -1 when decoded, else the enum run_cause
+ * it was refused for. */
+int qw_run_message(struct run_daemon *dm, const struct qw_bus_msg *m);
 
 /* run_report.c */
 /* Answers every waiting control request. */

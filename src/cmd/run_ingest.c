@@ -91,6 +91,7 @@ static void run_send_alert(struct run_daemon *dm, struct run_group *g,
 	       a->group, a->event == QW_EVENT_RAISE ? "raise" : "clear",
 	       a->score, a->limit, a->ncontrib > 0 ? ", top " : "",
 	       a->ncontrib > 0 ? a->names[a->contrib[0].channel] : "");
+	qw_run_mqtt_alert(dm, a->group, dm->alert, len);
 	rc = qw_bus_send(dm->alerts, topic, (size_t)n, dm->alert, len, 1);
 	if (rc == 0) {
 		dm->tot.alerts_sent++;
@@ -148,7 +149,7 @@ static void run_reading(struct run_daemon *dm, struct run_group *g,
 }
 
 /* Message m: topic, frames, decode, readings. */
-static void run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
+int qw_run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 {
 	struct qw_wire_batch b;
 	struct run_group *g;
@@ -161,23 +162,23 @@ static void run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 		gi = qw_run_topic_find(dm, m->head, m->head_len);
 	if (gi < 0) {
 		run_reject(dm, NULL, RUN_UNKNOWN_TOPIC, m);
-		return;
+		return RUN_UNKNOWN_TOPIC;
 	}
 	g = &dm->groups[gi];
 	g->received++;
 	if (m->nframes != 2) {
 		run_reject(dm, g, RUN_MALFORMED, m);
-		return;
+		return RUN_MALFORMED;
 	}
 	if (m->body_len > m->body_cap) {
 		run_reject(dm, g, RUN_OVERSIZE, m);
-		return;
+		return RUN_OVERSIZE;
 	}
 	qw_wire_batch_init(&b, g->conf->p, dm->batch, dm->batch_len);
 	rc = qw_wire_decode(m->body, m->body_len, &b);
 	if (rc != 0) {
 		run_reject(dm, g, run_wire_cause(rc), m);
-		return;
+		return run_wire_cause(rc);
 	}
 	g->decoded++;
 	dm->tot.decoded++;
@@ -185,6 +186,7 @@ static void run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 		run_seq(g, b.seq, b.n);
 	for (k = 0; k < b.n; k++)
 		run_reading(dm, g, b.t[k], b.x + k * b.p);
+	return -1;
 }
 
 void qw_run_ingest(struct run_daemon *dm, qw_bus_sock *s)
@@ -201,6 +203,6 @@ void qw_run_ingest(struct run_daemon *dm, qw_bus_sock *s)
 				       "receive: %s", qw_bus_strerror());
 			return;
 		}
-		run_message(dm, &dm->msg);
+		qw_run_message(dm, &dm->msg);
 	}
 }

@@ -146,6 +146,7 @@ static void report_totals(const struct run_daemon *dm, json_t *o)
 	json_object_set_new(o, "auth_allowed", report_u64(t->auth_allowed));
 	json_object_set_new(o, "auth_denied", report_u64(t->auth_denied));
 	json_object_set_new(o, "checkpoint", report_ckpt(&ck));
+	qw_run_mqtt_report(dm, o);
 }
 
 /* The status object: daemon-wide counters, uptime, groups by name. */

@@ -35,6 +35,8 @@ struct run_build {
 	double *batch;
 	size_t batch_len;
 	struct run_secure sec;       /* [security] keys (run_secure.c) */
+	qw_mqtt *mqtt;               /* MQTT client (run_mqtt.c) */
+	int mqtt_reused;
 };
 
 #define RUN_TOPIC_LOAD 2 /* slots per group, at least: short probes */
@@ -261,6 +263,8 @@ static void run_build_free(struct run_build *b)
 		qw_bus_close(b->alerts);
 	if (!b->control_reused)
 		qw_bus_close(b->control);
+	if (!b->mqtt_reused)
+		qw_mqtt_free(b->mqtt);
 	free(b->groups);
 	free(b->keep);
 	free(b->topics.slot);
@@ -296,6 +300,9 @@ static int run_build(struct run_daemon *dm, struct run_build *b)
 	/* keys first: the ZAP handler must be bound before any CURVE
 	 * server socket, or libzmq lets every client in */
 	if ((rc = qw_run_secure_build(dm, &b->cfg, &b->sec)) != 0)
+		return rc;
+	if ((rc = qw_run_mqtt_build(dm, &b->cfg, &b->mqtt,
+				    &b->mqtt_reused)) != 0)
 		return rc;
 	return run_sockets_build(dm, b);
 }
@@ -375,6 +382,7 @@ static void run_commit(struct run_daemon *dm, struct run_build *b)
 			dm->groups[b->keep[i]].det = NULL;
 		}
 	run_sockets_commit(dm, b);
+	qw_run_mqtt_commit(dm, b->mqtt, b->mqtt_reused);
 	run_free_config_state(dm);
 	dm->sec = b->sec;
 	dm->cfg = b->cfg;
@@ -496,6 +504,7 @@ void qw_run_teardown(struct run_daemon *dm)
 	qw_bus_close(dm->control);
 	qw_bus_close(dm->control_retired);
 	qw_bus_close(dm->zap);
+	qw_mqtt_free(dm->mqtt.client);
 	run_free_config_state(dm);
 	free(dm->alert);
 	qw_bus_poller_free(dm->poller);

@@ -47,6 +47,10 @@ static int sim_open(struct sim *sm, qw_bus *bus, qw_bus_sock **s)
 				"endpoint\n", sm->o.to);
 			return QW_EXIT_USAGE;
 		}
+	} else if (sm->cfg.ninputs == 0) {
+		fprintf(stderr, "quadwatch sim: %s has no ZeroMQ input (MQTT "
+			"only); give --to ENDPOINT\n", sm->cfg.path);
+		return QW_EXIT_USAGE;
 	} else {
 		ep = sm->cfg.inputs[0];
 		ep.bind = !ep.bind;

@@ -35,8 +35,9 @@ struct qw_bus_sock {
 };
 
 struct qw_bus_poller {
-	zmq_pollitem_t *items;
+	zmq_pollitem_t *items;  /* cap sockets, then the fd slot */
 	size_t n, cap;
+	zmq_pollitem_t fd;      /* fd.fd < 0: none */
 };
 
 /* Scratch for frames beyond frame 2: their content is not kept. */
@@ -433,12 +434,13 @@ qw_bus_poller *qw_bus_poller_alloc(size_t cap)
 
 	if (p == NULL)
 		return NULL;
-	p->items = calloc(cap > 0 ? cap : 1, sizeof *p->items);
+	p->items = calloc(cap + 1, sizeof *p->items);
 	if (p->items == NULL) {
 		free(p);
 		return NULL;
 	}
 	p->cap = cap;
+	p->fd.fd = -1;
 	return p;
 }
 
@@ -468,7 +470,14 @@ int qw_bus_poller_add(qw_bus_poller *p, qw_bus_sock *s)
 
 int qw_bus_poll(qw_bus_poller *p, long timeout_ms)
 {
-	int n = zmq_poll(p->items, (int)p->n, timeout_ms);
+	int n;
+
+	p->fd.revents = 0;
+	if (p->fd.fd >= 0)
+		p->items[p->n] = p->fd; /* the slot after the sockets */
+	n = zmq_poll(p->items, (int)p->n + (p->fd.fd >= 0), timeout_ms);
+	if (n > 0 && p->fd.fd >= 0)
+		p->fd.revents = p->items[p->n].revents;
 
 	if (n < 0) {
 		if (zmq_errno() == EINTR)
@@ -481,6 +490,22 @@ int qw_bus_poll(qw_bus_poller *p, long timeout_ms)
 int qw_bus_poller_ready(const qw_bus_poller *p, size_t i)
 {
 	return i < p->n && (p->items[i].revents & ZMQ_POLLIN) != 0;
+}
+
+void qw_bus_poller_set_fd(qw_bus_poller *p, int fd, int want_write)
+{
+	memset(&p->fd, 0, sizeof p->fd);
+	p->fd.fd = fd;
+	p->fd.events = (short)(ZMQ_POLLIN | (want_write ? ZMQ_POLLOUT : 0));
+}
+
+void qw_bus_poller_fd_ready(const qw_bus_poller *p, int *readable,
+			    int *writable)
+{
+	*readable = p->fd.fd >= 0 && (p->fd.revents & ZMQ_POLLIN) != 0;
+	*writable = p->fd.fd >= 0 && (p->fd.revents & ZMQ_POLLOUT) != 0;
+	if (p->fd.fd >= 0 && (p->fd.revents & ZMQ_POLLERR) != 0)
+		*readable = 1; /* the read reports the error */
 }
 
 int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend)

@@ -170,6 +170,13 @@ int qw_bus_poller_add(qw_bus_poller *p, qw_bus_sock *s);
 int qw_bus_poll(qw_bus_poller *p, long timeout_ms);
 /* After qw_bus_poll: 1 when socket i is readable. */
 int qw_bus_poller_ready(const qw_bus_poller *p, size_t i);
+/* One plain file descriptor polled after the sockets (an MQTT
+ * connection): fd < 0 = none; readable always, writable too when
+ * want_write.  Kept across qw_bus_poller_clear; set it before each poll. */
+void qw_bus_poller_set_fd(qw_bus_poller *p, int fd, int want_write);
+/* After qw_bus_poll: the fd's readiness (0 and 0 when none). */
+void qw_bus_poller_fd_ready(const qw_bus_poller *p, int *readable,
+			    int *writable);
 
 /* Forwards between frontend and backend (zmq_proxy) until a signal
  * interrupts (returns 1) or a socket fails (QW_EIO). */

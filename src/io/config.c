@@ -1,8 +1,9 @@
 /* config.c: the ini configuration file into struct qw_config (see config.h
  * and quadwatch.ini(5)).  This file reads the lines and sections and hands
  * each key to its section's table: config_bus.c has [bus], [state] and
- * [security], config_group.c has [group NAME], config_shard.c keeps the
- * groups [bus] groups (or -g) selects once the file is read.
+ * [security], config_group.c has [group NAME], config_mqtt.c has [mqtt],
+ * config_shard.c keeps the groups [bus] groups (or -g) selects once the
+ * file is read.
  *
  * inih does the key = value splitting and comments.  The Debian build of
  * inih passes no line numbers to the handler, so the file is handed to
@@ -156,6 +157,7 @@ static const struct cfg_key *cfg_table(int section)
 	case CFG_SEC_STATE: return cfg_state_keys;
 	case CFG_SEC_SECURITY: return cfg_security_keys;
 	case CFG_SEC_GROUP: return cfg_group_keys;
+	case CFG_SEC_MQTT: return cfg_mqtt_keys;
 	default: return NULL;
 	}
 }
@@ -240,8 +242,10 @@ static void cfg_section_end(struct cfg_parse *ps)
 /* Starts the section named in[0..n) (blanks trimmed) at the current line. */
 static void cfg_section_begin(struct cfg_parse *ps, const char *in, size_t n)
 {
-	static const char *const fixed[] = {"bus", "state", "security"};
-	static const int ids[] = {CFG_SEC_BUS, CFG_SEC_STATE, CFG_SEC_SECURITY};
+	static const char *const fixed[] = {"bus", "state", "security",
+					    "mqtt"};
+	static const int ids[] = {CFG_SEC_BUS, CFG_SEC_STATE, CFG_SEC_SECURITY,
+				  CFG_SEC_MQTT};
 	size_t i;
 
 	if (n >= sizeof ps->secname) {
@@ -252,7 +256,7 @@ static void cfg_section_begin(struct cfg_parse *ps, const char *in, size_t n)
 	}
 	memcpy(ps->secname, in, n);
 	ps->secname[n] = '\0';
-	for (i = 0; i < 3; i++) {
+	for (i = 0; i < sizeof ids / sizeof ids[0]; i++) {
 		if (strcmp(ps->secname, fixed[i]) != 0)
 			continue;
 		if (ps->sec_line[i] != 0) {
@@ -278,7 +282,7 @@ static void cfg_section_begin(struct cfg_parse *ps, const char *in, size_t n)
 	else
 		cfg_fail(ps, QW_ERROR(QW_EFORMAT), ps->line, NULL,
 			 "unknown section; expected [bus], [group NAME], "
-			 "[state] or [security]");
+			 "[state], [security] or [mqtt]");
 }
 
 /* A header line s[0..n) beginning with '['. */
@@ -432,7 +436,9 @@ static int cfg_parse_text(const char *text, size_t len, const char *name,
 			 NULL, "expected at least one [group NAME] section");
 	if (ps.rc == 0)
 		cfg_owned_apply(&ps);
-	if (ps.rc == 0 && cfg->ninputs == 0) {
+	if (ps.rc == 0)
+		cfg_mqtt_finish(&ps, ps.sec_line[3]); /* [mqtt] */
+	if (ps.rc == 0 && cfg->ninputs == 0 && cfg->mqtt.ninputs == 0) {
 		cfg->ninputs = 1;
 		cfg_default_endpoint(&cfg->inputs[0], QW_CONFIG_DEFAULT_INPUT);
 	}

@@ -15,12 +15,52 @@
 #define QW_CONFIG_NAME_MAX 64     /* bytes in a group or channel name */
 #define QW_CONFIG_ENDPOINT_MAX 256/* bytes in an endpoint */
 #define QW_CONFIG_ERR_MAX 512     /* bytes in an error message */
+#define QW_CONFIG_MAX_MQTT 8      /* mqtt:// inputs in [bus] input */
+#define QW_CONFIG_TOPIC_MAX 256   /* bytes in an MQTT topic filter */
+#define QW_CONFIG_SECRET_MAX 256  /* bytes in an MQTT user name or password */
 
 /* An endpoint as written: '@' binds, '>' connects, bare takes the socket's
  * default (inputs connect; alerts and control bind). */
 struct qw_endpoint {
 	char addr[QW_CONFIG_ENDPOINT_MAX]; /* without the @ or > */
 	int bind;                          /* 1 bind, 0 connect */
+};
+
+/* An MQTT address as written: mqtt://HOST[:PORT]/TOPIC, or mqtts:// for
+ * TLS.  TOPIC has exactly one level that is '+': in an input filter it
+ * matches the group name, in the alerts topic the group name replaces it
+ * (see quadwatch.ini(5) and docs/wire-format.md "MQTT"). */
+struct qw_mqtt_url {
+	int tls;                           /* 1: mqtts:// */
+	char host[QW_CONFIG_ENDPOINT_MAX]; /* name or address, no brackets */
+	int port;                          /* 1..65535 */
+	char topic[QW_CONFIG_TOPIC_MAX];   /* filter or alert topic */
+	unsigned level;                    /* index of the '+' level, from 0 */
+};
+
+/* MQTT inputs and the [mqtt] section; ninputs 0 and has_alerts 0 = no
+ * broker.  Every URL names the same broker (one connection). */
+struct qw_mqtt_conf {
+	struct qw_mqtt_url inputs[QW_CONFIG_MAX_MQTT];
+	size_t ninputs;
+	struct qw_mqtt_url alerts;         /* alerts published per group */
+	int has_alerts;
+	int qos;                           /* 0 or 1: subscriptions, alerts */
+	char client_id[QW_CONFIG_NAME_MAX]; /* "" = random, clean session;
+					     set = the broker keeps the
+					     session across reconnects */
+	double keepalive;                  /* s between pings when idle */
+	double reconnect_min, reconnect_max; /* s: back-off, doubling */
+	char ca_file[1024];                /* TLS: CA certificates (PEM);
+					      "" = the system's store */
+	char cert_file[1024], key_file[1024]; /* TLS client certificate */
+	char credentials[1024];            /* file: user name, password */
+	/* lines where keys were set, for errors found at the end; 0 = not
+	   set */
+	int line;                          /* of the first MQTT address */
+	int input_line, alerts_line, ca_line, cert_line, key_line;
+	int credentials_line;
+	int reconnect_line;
 };
 
 struct qw_group_conf {
@@ -56,6 +96,7 @@ struct qw_config {
 	size_t ngroups_file;            /* [group] sections in the file */
 	int groups_line;                /* line of [bus] groups; 0 = unset */
 	int groups_cli;                 /* 1: the selection came from -g */
+	struct qw_mqtt_conf mqtt;       /* mqtt:// inputs and [mqtt] */
 };
 
 #define QW_CONFIG_DEFAULT_INPUT ">tcp://127.0.0.1:5601"
@@ -85,5 +126,20 @@ const struct qw_group_conf *qw_config_group(const struct qw_config *cfg,
 /* 64-bit FNV-1a over what a learned model depends on: p and the channel
  * names in order.  Equal fingerprints: the model can be kept on reload. */
 uint64_t qw_config_fingerprint(const struct qw_group_conf *g);
+/* Checks the files of [mqtt] as the daemon will read them: ca_file,
+ * cert_file, key_file exist and are readable regular files, key_file and
+ * credentials are open to their owner only, credentials has its two lines.
+ * 0, or QW_EFORMAT/QW_EIO with "FILE:LINE: [mqtt] KEY: why" in err.  The
+ * daemon (at start and reload) and check call it; the parse does not, so
+ * the other verbs need no access to these files. */
+int qw_config_mqtt_files(const struct qw_config *cfg, char *err,
+			 size_t errlen);
+/* Reads an MQTT credentials file: the user name on its first line, the
+ * password on the second (config_mqtt.c).  The file must be a regular file
+ * readable by its owner only (mode 0600 or 0400).  0, or QW_EFORMAT/QW_EIO
+ * with the reason in err; user and pass are wiped on error. */
+int qw_config_mqtt_credentials(const char *path, char *user, size_t ucap,
+			       char *pass, size_t pcap, char *err,
+			       size_t errlen);
 
 #endif

@@ -74,7 +74,13 @@ static int bus_input(struct cfg_parse *ps, const char *v)
 	if (n > QW_CONFIG_MAX_INPUTS)
 		return cfg_bad(ps, "expected at most %d endpoints, got %zu",
 			       QW_CONFIG_MAX_INPUTS, n);
-	for (c->ninputs = 0; cfg_item(&v, &item, &len); c->ninputs++) {
+	c->ninputs = 0;
+	while (cfg_item(&v, &item, &len)) {
+		if (cfg_is_mqtt(item, len)) { /* an MQTT broker, not ZeroMQ */
+			if ((rc = cfg_mqtt_input(ps, item, len)) != 0)
+				return rc;
+			continue;
+		}
 		rc = cfg_endpoint(ps, item, len, 0, &c->inputs[c->ninputs]);
 		if (rc != 0)
 			return rc;
@@ -84,6 +90,7 @@ static int bus_input(struct cfg_parse *ps, const char *v)
 				return cfg_bad(ps, "expected each endpoint "
 						   "once; '%s' is listed twice",
 					       c->inputs[i].addr);
+		c->ninputs++;
 	}
 	return 0;
 }

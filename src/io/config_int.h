@@ -46,7 +46,8 @@ struct cfg_parse {
 	int indented;              /* that line is a continuation candidate */
 	int section;               /* enum cfg_section */
 	char secname[CFG_SECTION_MAX]; /* as written, for messages */
-	int sec_line[4];           /* first line of [bus] [state] [security] */
+	int sec_line[4];           /* first line of [bus] [state] [security]
+				      [mqtt] */
 	int key_line[CFG_KEYS_MAX];/* line each key of this section was set */
 	/* the key being read; continuation lines append to its value */
 	int have_key;
@@ -73,7 +74,8 @@ enum cfg_section {
 	CFG_SEC_STATE = 2,
 	CFG_SEC_SECURITY = 3,
 	CFG_SEC_GROUP = 4,
-	CFG_SEC_BAD = 5       /* unknown header; its keys are ignored */
+	CFG_SEC_BAD = 5,      /* unknown header; its keys are ignored */
+	CFG_SEC_MQTT = 6
 };
 
 /* A key of a section: its setter parses value and stores it. */
@@ -108,6 +110,16 @@ extern const struct cfg_key cfg_security_keys[];
  * sets cfg->ngroups_file, groups_line, groups_cli.  0 or the error. */
 int cfg_bus_groups(struct cfg_parse *ps, const char *value);
 int cfg_owned_apply(struct cfg_parse *ps);
+
+/* config_mqtt.c */
+extern const struct cfg_key cfg_mqtt_keys[];
+/* 1 when s[0..n) begins with mqtt:// or mqtts:// */
+int cfg_is_mqtt(const char *s, size_t n);
+/* One mqtt:// item of [bus] input into cfg->mqtt.inputs. */
+int cfg_mqtt_input(struct cfg_parse *ps, const char *s, size_t n);
+/* Defaults and checks across keys once the file is read; section_line is
+ * the line of [mqtt] (0: absent). */
+int cfg_mqtt_finish(struct cfg_parse *ps, int section_line);
 
 /* config_group.c */
 extern const struct cfg_key cfg_group_keys[];

@@ -63,6 +63,53 @@ static int hotelling(void)
 	return 0;
 }
 
+/* A fixed model fitted, untrimmed, from n Gaussian readings of p
+ * channels (floors far below the spread): its limit. */
+static int phase2(size_t p, size_t n, unsigned long seed)
+{
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double *t = malloc(n * sizeof *t), *x = malloc(n * p * sizeof *x);
+	double *A = malloc(p * p * sizeof *A), *z = malloc(p * sizeof *z);
+	double *floor = malloc(p * sizeof *floor);
+	struct qw_params par;
+	struct qw_fit_opts o;
+	struct qw_fit_result r;
+	qw_detector *m = NULL;
+	size_t i;
+	int rc = 1;
+
+	if (!rng || !t || !x || !A || !z || !floor)
+		goto out;
+	gsl_rng_set(rng, seed);
+	qwt_mixing(rng, p, A);
+	qw_params_default(&par, p);
+	par.rate = 1.0;
+	par.alarms_per_day = 100.0;
+	for (i = 0; i < p; i++)
+		floor[i] = 1e-6;
+	par.floor = floor;
+	for (i = 0; i < n; i++) {
+		t[i] = (double)i;
+		qwt_draw(rng, p, A, NULL, z, x + i * p);
+	}
+	qw_fit_opts_default(&o);
+	o.trim_alpha = 0;
+	if (qw_fit_run(&par, t, x, n, &o, &r, &m) != 0)
+		goto out;
+	printf("phase2 %zu %llu %.17g %.17g\n", p,
+	       (unsigned long long)r.used, r.alpha, qw_detector_limit(m));
+	rc = 0;
+out:
+	qw_detector_free(m);
+	free(t);
+	free(x);
+	free(A);
+	free(z);
+	free(floor);
+	gsl_rng_free(rng);
+	return rc;
+}
+
 int main(int argc, char **argv)
 {
 	gsl_set_error_handler_off();
@@ -72,6 +119,11 @@ int main(int argc, char **argv)
 			   strtoul(argv[5], NULL, 10));
 	if (argc == 2 && strcmp(argv[1], "hotelling") == 0)
 		return hotelling();
-	fprintf(stderr, "usage: helper_fit gpd XI SIGMA N SEED | hotelling\n");
+	if (argc == 5 && strcmp(argv[1], "phase2") == 0)
+		return phase2(strtoul(argv[2], NULL, 10),
+			      strtoul(argv[3], NULL, 10),
+			      strtoul(argv[4], NULL, 10));
+	fprintf(stderr, "usage: helper_fit gpd XI SIGMA N SEED | hotelling | "
+		"phase2 P N SEED\n");
 	return 2;
 }

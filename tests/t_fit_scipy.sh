@@ -16,3 +16,9 @@ $H hotelling | $R hotelling
 if $H hotelling | $R hotelling --tamper >/dev/null; then
 	echo "tampered Hotelling limits were not caught"; exit 1
 fi
+for a in "2 50 1" "4 213 2" "10 1000 3"; do
+	$H phase2 $a | $R phase2
+	if $H phase2 $a | $R phase2 --tamper >/dev/null; then
+		echo "tampered fixed-model limit was not caught"; exit 1
+	fi
+done

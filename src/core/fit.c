@@ -228,15 +228,17 @@ static int fit_range(struct fit_work *w, size_t lo, size_t hi,
 static void fit_heldout(struct fit_work *w, qw_detector *d, size_t lo,
 			size_t hi, double *z, size_t *nz)
 {
+	double lim = qw_detector_limit(d);
 	struct qw_result res;
 	size_t i;
 
+	if (!(lim > 0) || !isfinite(lim))
+		return; /* too few readings for a limit: nothing to measure */
 	for (i = lo; i < hi; i++) {
 		(void)qw_detector_add_flags(d, w->t[i], w->x + i * w->p,
 					    QW_ADD_NOLEARN, &res);
-		if (res.scored && res.dof == w->p && isfinite(res.q) &&
-		    res.limit > 0 && isfinite(res.limit))
-			z[(*nz)++] = res.q / res.limit;
+		if (res.scored && res.dof == w->p && isfinite(res.q))
+			z[(*nz)++] = res.q / lim;
 	}
 }
 
@@ -328,7 +330,10 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	w.fp.time_based = 0;
 	w.fp.learn = QW_LEARN_ALL;
 	w.fp.relearn_after = 0;
-	w.fp.warmup = 0;
+	/* never out of warm-up: the model's share learned under a guard
+	 * stays 0 (a group loading it then applies no guard-bias correction
+	 * to what was learned here), and the fit raises no alarm state */
+	w.fp.warmup = UINT64_MAX;
 	w.fp.fixed_limit = 0;
 	w.fp.limit_factor = 1.0;
 	w.o = o;

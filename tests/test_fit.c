@@ -161,6 +161,9 @@ static void heavy_tail_delivered_rate(void **st)
  * way is the reference; a trimmed fit that missed the faults would be off
  * by far more (printed beside it: the untrimmed fit). */
 #define TOL_MODEL 0.03
+/* Empirical limits of the two recordings: same healthy readings but for
+ * the stretches, so far closer than the tail fit's own noise (~5%). */
+#define TOL_LIMIT 0.02
 
 static double model_gap(qw_detector *a, qw_detector *b, size_t p,
 			double *mean_gap)
@@ -235,6 +238,15 @@ static void trimming_bad_stretches(void **st)
 	assert_true(rb.trimmed >= BAD_N * BAD_LEN);
 	assert_true(rb.trimmed <= rc.trimmed + BAD_N * BAD_LEN + 50);
 	assert_true(rb.used + rb.trimmed == TRIM_N);
+	/* the stretches are kept out of the held-out tail, so the
+	 * empirical limit is the clean recording's */
+	printf("# bad stretches left out of the tail: %llu readings; "
+	       "empirical limit %.4f (clean %.4f, Gaussian %.4f)\n",
+	       (unsigned long long)rb.bad_stretch, rb.limit_emp, rc.limit_emp,
+	       rc.limit_gauss);
+	assert_true(rb.bad_stretch >= BAD_N * BAD_LEN &&
+		    rb.bad_stretch <= BAD_N * BAD_LEN + 50);
+	assert_true(qwt_reldiff(rb.limit_emp, rc.limit_emp, 0) < TOL_LIMIT);
 	gap = model_gap(mn, mc, TRIM_P, &mgap);
 	printf("# untrimmed contaminated fit: covariance gap %.4f, mean gap "
 	       "%.4f sd\n", gap, mgap);

@@ -243,6 +243,9 @@ static void fit_print(const struct qw_group_conf *gc,
 		       r->tail_u, r->gpd.n);
 	printf("  %-22s %llu (%.6g days at %g readings/s)\n", "heldout:",
 	       (unsigned long long)r->heldout, r->heldout_days, par->rate);
+	printf("  %-22s %llu readings in runs of trimmed readings, left "
+	       "out of the held-out scores\n", "bad_stretches:",
+	       (unsigned long long)r->bad_stretch);
 	printf("  %-22s %.6g expected (configured %g)\n", "alarms_per_day:",
 	       par->alarms_per_day, par->alarms_per_day);
 	printf("  %-22s %.6g (%llu alarms, %llu exceedances)\n",

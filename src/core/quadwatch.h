@@ -394,6 +394,8 @@ struct qw_fit_result {
 	struct qw_gpd gpd;    /* of held-out scores / their Gaussian limit */
 	double tail_u;        /* the threshold of that fit (limit units) */
 	uint64_t heldout;     /* held-out readings scored on all channels */
+	uint64_t bad_stretch; /* readings in runs of trimmed readings, kept
+				 out of the held-out scores (fit.c) */
 	double heldout_days;  /* heldout / rate / 86400 */
 	uint64_t ex_gauss, ex_emp;   /* held-out exceedances of each limit */
 	uint64_t alarms_gauss, alarms_emp; /* raised under the group's rule */

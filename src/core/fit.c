@@ -24,10 +24,12 @@
  * After each refit the covariance is multiplied by the Gaussian
  * consistency factor of its cut, keep / P(chi2_{p+2} <= chi2_p^-1(keep))
  * (Croux & Haesbroeck 1999; tail.c).  The distances come from the
- * detector's own score q (a plain reading, an innovation or the MEWMA
- * statistic), compared with chi-square(dof): the references' setting is
- * iid Gaussian readings, and what the detector scores is built to be
- * close to that.
+ * detector's own score q (of a plain reading or an innovation), compared with chi-square(dof): the references'
+ * setting is iid Gaussian readings, and what the detector scores is built
+ * to be close to that.  Under mode = mewma the trimming runs in plain
+ * mode (a reading's own score: the smoothed statistic stays high for a
+ * while after one bad reading, and would trim its healthy neighbours);
+ * the group's own MEWMA detector then learns the kept readings.
  *
  * The limit: Gaussian theory gives the fixed model's limit (the
  * detector's own, e.g. the Phase II F form for a plain group); a plant's
@@ -37,7 +39,11 @@
  * divided by the limit of the model that scored it, and the upper alpha
  * quantile of these ratios (tail.c: generalised Pareto above the
  * tail_fraction quantile, maximum likelihood) is the limit factor of the
- * model fitted on the whole recording.  Readings inside a run of at
+ * model fitted on the whole recording.  (Under mewma the group's limit
+ * is set for a raise rate, not a per-reading exceedance probability; the
+ * ratio of the held-out exceedance quantile at the group's alpha to the
+ * Gaussian limit is then a proxy for the correction, not its exact
+ * value.)  Readings inside a run of at
  * least FIT_BAD_RUN consecutive readings that the whole recording's fit
  * trimmed are bad stretches, left out of the held-out scores: a heavy
  * tail trims isolated readings, a fault that lasts trims a run.  Bad
@@ -72,6 +78,7 @@
 
 struct fit_work {
 	struct qw_params fp;     /* the group's params, no forgetting */
+	struct qw_params tp;     /* the same in plain mode: what trims */
 	const struct qw_fit_opts *o;
 	const double *t, *x;
 	size_t p;
@@ -94,10 +101,10 @@ void qw_fit_opts_default(struct qw_fit_opts *o)
 
 /* A detector that learned the untrimmed readings of [lo, hi), its
  * covariance times c.  NULL when out of memory. */
-static qw_detector *fit_learn(struct fit_work *w, size_t lo, size_t hi,
-			      double c)
+static qw_detector *fit_learn(struct fit_work *w, const struct qw_params *par,
+			      size_t lo, size_t hi, double c)
 {
-	qw_detector *d = qw_detector_alloc(&w->fp);
+	qw_detector *d = qw_detector_alloc(par);
 	struct qw_result res;
 	size_t i;
 
@@ -181,7 +188,7 @@ static int fit_stage(struct fit_work *w, size_t lo, size_t hi, double keep,
 	int rc;
 
 	*conv = 0;
-	if (*d == NULL && (*d = fit_learn(w, lo, hi, 1.0)) == NULL)
+	if (*d == NULL && (*d = fit_learn(w, &w->tp, lo, hi, 1.0)) == NULL)
 		return QW_ERROR(QW_ENOMEM);
 	for (it = 0; it < w->o->max_iter; it++) {
 		if ((rc = fit_pvalues(w, *d, lo, hi)) != 0)
@@ -192,7 +199,7 @@ static int fit_stage(struct fit_work *w, size_t lo, size_t hi, double keep,
 			return 0;
 		}
 		qw_detector_free(*d);
-		if ((*d = fit_learn(w, lo, hi, c)) == NULL)
+		if ((*d = fit_learn(w, &w->tp, lo, hi, c)) == NULL)
 			return QW_ERROR(QW_ENOMEM);
 		*iters = it + 1;
 	}
@@ -219,9 +226,13 @@ static int fit_range(struct fit_work *w, size_t lo, size_t hi,
 		r->consistency = qw_tail_consistency(1.0 - o->trim_alpha,
 						     (unsigned)w->p);
 	}
-	if (rc == 0 && o->trim_alpha <= 0 &&
-	    (*d = fit_learn(w, lo, hi, 1.0)) == NULL)
-		rc = QW_ERROR(QW_ENOMEM);
+	/* the group's own detector learns the kept readings (under mewma
+	 * the model is the plain one's, with the smoothed state beside it) */
+	if (rc == 0 && (o->trim_alpha <= 0 || w->fp.mode != w->tp.mode)) {
+		qw_detector_free(*d);
+		if ((*d = fit_learn(w, &w->fp, lo, hi, r->consistency)) == NULL)
+			rc = QW_ERROR(QW_ENOMEM);
+	}
 	if (rc != 0)
 		return rc;
 	r->converged = c1 && c2;
@@ -367,6 +378,8 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	w.fp.warmup = UINT64_MAX;
 	w.fp.fixed_limit = 0;
 	w.fp.limit_factor = 1.0;
+	w.tp = w.fp;
+	w.tp.mode = QW_MODE_PLAIN;
 	w.o = o;
 	w.t = t;
 	w.x = x;

@@ -136,6 +136,26 @@ for ini in (other, missing):
                 "file: %s" % (verb[0], r.stderr))
 q.note("refused: " + r.stderr.strip().splitlines()[-1])
 
+# whitening: a var1 group fits through its own detector; a group with
+# other dynamics refuses that model, naming the setting
+dyn = os.path.join(tmp, "var1.ini")
+config(dyn, dynamics="var1")
+dmodels = os.path.join(tmp, "dmodels")
+os.mkdir(dmodels)
+r = run("fit", "-c", dyn, "-q", "-o", dmodels, fit_csv)
+q.check(r.returncode == 0 and "dynamics:" in r.stdout and
+        "var1" in kv(r.stdout)["dynamics"], "var1 fit: %s" % r.stderr)
+dpath = os.path.join(dmodels, "skid.qwmodel")
+config(dyn, dynamics="var1", model=dpath)
+r = run("replay", "-c", dyn, "--json", "-q", fresh_csv)
+q.check(r.returncode == 0, "replay of the var1 model: %s" % r.stderr)
+config(dyn, dynamics="ar1", model=dpath)
+r = run("replay", "-c", dyn, "-q", fresh_csv)
+q.check(r.returncode == 2 and "dynamics = var1" in r.stderr and
+        dpath in r.stderr, "ar1 group, var1 model: exit %d: %s" %
+        (r.returncode, r.stderr))
+q.note("refused: " + r.stderr.strip())
+
 for args in (["fit", fit_csv], ["fit", "-c", base],
              ["fit", "-c", base, "--group", "nope", fit_csv],
              ["fit", "-c", base, "--bogus", fit_csv]):

@@ -118,6 +118,21 @@ config(warm, model=path, model_use="warm")
 r = run("replay", "-c", warm, "--json", "-q", fresh_csv)
 q.check(r.returncode == 0, "replay warm failed: %s" % r.stderr)
 
+# the daemon with the fixed model: its limit is the fit's empirical one
+# and it learns nothing from the stream
+ft, fx = t_readings(2000, 47)
+alerts, st, dm = q.run_stream(tmp, "fixed", "binary", ft, fx,
+                              warmup=200, alarms_per_day=20, model=path,
+                              model_use="fixed")
+gs = st["groups"]["skid"]
+q.check(abs(gs["limit"] - le) < 1e-6 * le, "daemon limit %r, fit's %r" %
+        (gs["limit"], le))
+q.check(gs["learned"] == int(f["used"]), "the fixed model learned: %r vs "
+        "%s" % (gs["learned"], f["used"]))
+dm.stop()
+q.note("daemon with the fixed model: limit %.6g, %d alerts on 2000 fresh "
+       "readings" % (gs["limit"], len(alerts)))
+
 # refusals: other channels, missing file; replay, check and run
 other = os.path.join(tmp, "other.ini")
 g = q.skid_group(warmup=200, model=path)

@@ -110,7 +110,8 @@ r = run("check", "-c", fixed)
 q.check(r.returncode == 0, "check with the model failed: %s" % r.stderr)
 c = kv(r.stdout)
 q.check(c.get("model") == path and c.get("model_use") == "fixed" and
-        abs(float(c["model_limit_factor"]) - lf) < 1e-6 * lf,
+        abs(float(c["model_limit_factor"]) - lf) < 1e-6 * lf and
+        abs(float(c["model_limit"]) - le) < 1e-6 * le,
         "check's model lines: %r" % c)
 
 warm = os.path.join(tmp, "warm.ini")

@@ -234,6 +234,7 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	steady = qw_detector_steady_limit(d);
 	nu = qw_detector_steady_nu(d);
 	scale = qw_detector_steady_scale(d);
+	meta.limit_emp = qw_detector_limit(d); /* a model's limit in force */
 	qw_detector_free(d);
 	if (!isfinite(steady)) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s] half_life: "
@@ -269,6 +270,7 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 		chk_kv(2, "model_readings", "%llu",
 		       (unsigned long long)meta.used);
 		chk_kv(2, "model_limit_factor", "%.10g", meta.limit_factor);
+		chk_kv(2, "model_limit", "%.10g", meta.limit_emp);
 	}
 	return 0;
 }

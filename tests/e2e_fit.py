@@ -7,6 +7,7 @@ through model = PATH, model_use = fixed | warm.  Checked:
   - replay of a fresh heavy-tailed recording with the fixed model runs
     against the empirical limit (the group's limit_end), and with
     model_use = warm too;
+  - a `record` capture of the same readings fits to the same model;
   - check prints the model lines;
   - a group with other channels, or a missing model file, is refused by
     replay, check and run with exit 2 and a message naming the file;
@@ -14,6 +15,7 @@ through model = PATH, model_use = fixed | warm.  Checked:
 import json
 import os
 import re
+import struct
 import subprocess
 
 import numpy as np
@@ -92,6 +94,26 @@ q.check(abs(le / lg - lf) < 1e-6 * lf, "ratio %g vs factor %g" % (le / lg, lf))
 q.check(lf > 1.2, "a t5 recording should need a larger limit: %g" % lf)
 q.check(250 <= int(f["bad_stretches"]) <= 400, "bad stretches: %s readings "
         "left out, 250 injected" % f["bad_stretches"])
+
+# the same recording as a `record` capture (binary QWB1 payloads, values
+# as the CSV holds them): the same fit
+cap = os.path.join(tmp, "healthy.qwcap")
+ct, cx = t_readings(N_FIT, 41, bad)
+cx = np.round(cx, 6)
+with open(cap, "wb") as fh:
+    fh.write(struct.pack("<6sHII", b"QWCAP1", 1, 0, 0))
+    for i in range(0, N_FIT, 64):
+        pl = q.binary(ct[i:i + 64], cx[i:i + 64], i)
+        fh.write(struct.pack("<dH", ct[i], 4) + b"skid" +
+                 struct.pack("<I", len(pl)) + pl)
+cmodels = os.path.join(tmp, "cmodels")
+os.mkdir(cmodels)
+r = run("fit", "-c", base, "-q", "-o", cmodels, cap)
+q.check(r.returncode == 0, "fit of a capture: %s" % r.stderr)
+fc = kv(r.stdout)
+for k in ("readings", "used", "trimmed", "limit_gaussian", "limit_factor"):
+    q.check(fc[k] == f[k], "capture vs CSV fit: %s %s vs %s" % (k, fc[k],
+                                                               f[k]))
 
 fixed = os.path.join(tmp, "fixed.ini")
 config(fixed, model=path, model_use="fixed")

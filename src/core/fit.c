@@ -87,6 +87,7 @@ struct fit_work {
 				    when not scored */
 	double *tmp;             /* n scratch (C-step threshold) */
 	unsigned char *bad;      /* n: inside a bad stretch (FIT_BAD_RUN) */
+	double *z;               /* n held-out scores / their limit */
 	unsigned char *state;    /* a detector's state, saved around scoring */
 	size_t state_len;
 };
@@ -349,14 +350,59 @@ static int fit_limit(struct fit_work *w, const struct qw_params *par,
 	return 0;
 }
 
+/* The fit's parameters (the group's, with no forgetting, every reading
+ * learned, never out of warm-up) and buffers.  0 or QW_ENOMEM; the caller
+ * frees with fit_work_free either way. */
+static int fit_work_init(struct fit_work *w, const struct qw_params *par,
+			 const double *t, const double *x, size_t n,
+			 const struct qw_fit_opts *o)
+{
+	size_t m = n > 0 ? n : 1;
+
+	memset(w, 0, sizeof *w);
+	w->fp = *par;
+	w->fp.half_life = QW_HALF_LIFE_NONE;
+	w->fp.time_based = 0;
+	w->fp.learn = QW_LEARN_ALL;
+	w->fp.relearn_after = 0;
+	/* never out of warm-up: the model's share learned under a guard
+	 * stays 0 (a group loading it then applies no guard-bias correction
+	 * to what was learned here), and the fit raises no alarm state */
+	w->fp.warmup = UINT64_MAX;
+	w->fp.fixed_limit = 0;
+	w->fp.limit_factor = 1.0;
+	w->tp = w->fp;
+	w->tp.mode = QW_MODE_PLAIN;
+	w->o = o;
+	w->t = t;
+	w->x = x;
+	w->p = par->p;
+	w->trim = calloc(m, 1);
+	w->bad = malloc(m);
+	w->pv = malloc(m * sizeof *w->pv);
+	w->tmp = malloc(m * sizeof *w->tmp);
+	w->z = malloc(m * sizeof *w->z);
+	return w->trim && w->bad && w->pv && w->tmp && w->z
+	       ? 0 : QW_ERROR(QW_ENOMEM);
+}
+
+static void fit_work_free(struct fit_work *w)
+{
+	free(w->trim);
+	free(w->bad);
+	free(w->pv);
+	free(w->tmp);
+	free(w->z);
+	free(w->state);
+}
+
 int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	       size_t n, const struct qw_fit_opts *o, struct qw_fit_result *res,
 	       qw_detector **model)
 {
 	struct fit_work w;
 	struct qw_fit_result fin;
-	qw_detector *d = NULL, *probe;
-	double *z = NULL;
+	qw_detector *d = NULL;
 	int rc;
 
 	memset(res, 0, sizeof *res);
@@ -366,35 +412,8 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	    !(o->trim_alpha >= 0 && o->trim_alpha < 0.5) ||
 	    !(o->tail_fraction > 0 && o->tail_fraction < 1))
 		return QW_ERROR(QW_EINVAL);
-	memset(&w, 0, sizeof w);
-	w.fp = *par;
-	w.fp.half_life = QW_HALF_LIFE_NONE;
-	w.fp.time_based = 0;
-	w.fp.learn = QW_LEARN_ALL;
-	w.fp.relearn_after = 0;
-	/* never out of warm-up: the model's share learned under a guard
-	 * stays 0 (a group loading it then applies no guard-bias correction
-	 * to what was learned here), and the fit raises no alarm state */
-	w.fp.warmup = UINT64_MAX;
-	w.fp.fixed_limit = 0;
-	w.fp.limit_factor = 1.0;
-	w.tp = w.fp;
-	w.tp.mode = QW_MODE_PLAIN;
-	w.o = o;
-	w.t = t;
-	w.x = x;
-	w.p = par->p;
-	if ((probe = qw_detector_alloc(&w.fp)) == NULL)
-		return QW_ERROR(QW_ENOMEM);
-	res->alpha = qw_detector_alpha(probe);
-	qw_detector_free(probe);
 	res->readings = n;
-	w.trim = calloc(n > 0 ? n : 1, 1);
-	w.pv = malloc((n > 0 ? n : 1) * sizeof *w.pv);
-	w.tmp = malloc((n > 0 ? n : 1) * sizeof *w.tmp);
-	z = malloc((n > 0 ? n : 1) * sizeof *z);
-	w.bad = malloc(n > 0 ? n : 1);
-	rc = w.trim && w.pv && w.tmp && w.bad && z ? 0 : QW_ERROR(QW_ENOMEM);
+	rc = fit_work_init(&w, par, t, x, n, o);
 	/* the model first: its trim flags mark the bad stretches that the
 	 * held-out tail leaves out */
 	if (rc == 0)
@@ -402,8 +421,9 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	if (rc == 0 && fin.used <= par->p)
 		rc = QW_ERROR(QW_ENODATA); /* no covariance to speak of */
 	if (rc == 0) {
+		res->alpha = qw_detector_alpha(d);
 		res->bad_stretch = fit_mark_bad(&w, n);
-		rc = fit_limit(&w, par, n, z, res);
+		rc = fit_limit(&w, par, n, w.z, res);
 	}
 	if (rc == 0) {
 		res->used = fin.used;
@@ -418,11 +438,6 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 		d = NULL;
 	}
 	qw_detector_free(d);
-	free(w.trim);
-	free(w.pv);
-	free(w.tmp);
-	free(w.bad);
-	free(w.state);
-	free(z);
+	fit_work_free(&w);
 	return rc;
 }

@@ -25,6 +25,7 @@
 #include <gsl/gsl_randist.h>
 
 #include "quadwatch.h"
+#include "qwalloc.h"
 #include "qwtest.h"
 
 #define P 4
@@ -444,6 +445,53 @@ static void fit_errors(void **st)
 	qw_detector_free(m);
 }
 
+/* SQLite's sweep: the k-th allocation of a fit fails, for every k; each
+ * run fails with QW_ENOMEM, returns no model and leaks nothing. */
+static void fit_allocation_failures(void **st)
+{
+	enum { N = 400, Q = 2 };
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double floor[Q], A[Q * Q], z[Q], t[N], x[N * Q];
+	struct qw_params par;
+	struct qw_fit_opts o;
+	struct qw_fit_result r;
+	qw_detector *m;
+	long k;
+	int rc;
+	size_t i;
+
+	(void)st;
+	if (!QWA_ACTIVE) {
+		gsl_rng_free(rng);
+		skip();
+	}
+	gsl_rng_set(rng, 3);
+	qwt_mixing(rng, Q, A);
+	params(&par, Q, floor);
+	for (i = 0; i < N; i++) {
+		t[i] = (double)i;
+		qwt_draw(rng, Q, A, NULL, z, x + i * Q);
+	}
+	qw_fit_opts_default(&o);
+	for (k = 0;; k++) {
+		m = NULL;
+		qwa_start(k);
+		rc = qw_fit_run(&par, t, x, N, &o, &r, &m);
+		qw_detector_free(m);
+		qwa_stop();
+		if (!qwa_injected()) {
+			assert_int_equal(rc, 0);
+			break;
+		}
+		assert_int_equal(rc, QW_ENOMEM);
+		assert_null(m);
+		assert_int_equal(qwa.live, 0);
+	}
+	printf("# fit: %ld allocations, each failed in turn, cleanly\n", k);
+	assert_true(k > 5);
+	gsl_rng_free(rng);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -452,6 +500,7 @@ int main(void)
 		cmocka_unit_test(untrimmed_is_sample_moments),
 		cmocka_unit_test(dynamics_each_setting),
 		cmocka_unit_test(fit_errors),
+		cmocka_unit_test(fit_allocation_failures),
 	};
 
 	gsl_set_error_handler_off();

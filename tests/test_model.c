@@ -25,6 +25,7 @@
 #include "config.h"
 #include "model.h"
 #include "quadwatch.h"
+#include "qwalloc.h"
 #include "qwtest.h"
 
 #define MD_P 3
@@ -280,6 +281,40 @@ static void refusals(void **st)
 	free(b);
 }
 
+/* Every allocation of loading a model, failed in turn: a clean
+ * QW_ENOMEM with a message, no detector, nothing leaked. */
+static void load_allocation_failures(void **st)
+{
+	struct md_fix *f = *st;
+	char err[MD_ERR];
+	qw_detector *d;
+	long k;
+	int rc;
+
+	if (!QWA_ACTIVE)
+		skip();
+	md_write(f, f->file, f->len);
+	md_config(f, "a, b, c", "fixed");
+	for (k = 0;; k++) {
+		err[0] = '\0';
+		qwa_start(k);
+		rc = qw_model_detector(&f->cfg.groups[0], &d, NULL, err,
+				       sizeof err);
+		qw_detector_free(rc == 0 ? d : NULL);
+		qwa_stop();
+		if (!qwa_injected()) {
+			assert_int_equal(rc, 0);
+			break;
+		}
+		assert_int_equal(rc, QW_ENOMEM);
+		assert_null(d);
+		assert_true(err[0] != '\0');
+		assert_int_equal(qwa.live, 0);
+	}
+	printf("# model load: %ld allocations, each failed in turn\n", k);
+	assert_true(k >= 2);
+}
+
 static void config_keys(void **st)
 {
 	struct qw_config cfg;
@@ -311,6 +346,7 @@ int main(void)
 		cmocka_unit_test(roundtrip),
 		cmocka_unit_test(loaded_groups),
 		cmocka_unit_test(refusals),
+		cmocka_unit_test(load_allocation_failures),
 		cmocka_unit_test(config_keys),
 	};
 

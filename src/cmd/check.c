@@ -18,6 +18,7 @@
 #include "auth.h"
 #include "cmd.h"
 #include "config.h"
+#include "model.h"
 
 #define CHK_VALUE_COL 27 /* column of values: after the longest key */
 
@@ -202,18 +203,26 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 		     int quiet)
 {
 	const struct qw_params *par = &g->params;
+	struct qw_model_meta meta;
+	char err[QW_CONFIG_ERR_MAX];
 	struct timespec t0, t1;
-	qw_detector *d;
+	qw_detector *d = NULL;
 	double alpha, plain, steady, nu, scale, ms;
+	int rc;
 
 	/* Building the detector solves the limits (MEWMA: a quadrature); its
-	 * time is what each start and reload of the group costs. */
+	 * time is what each start and reload of the group costs.  A group
+	 * with a model file builds from it, as run does. */
 	clock_gettime(CLOCK_MONOTONIC, &t0);
-	d = qw_detector_alloc(par);
+	rc = qw_model_detector(g, &d, &meta, err, sizeof err);
 	clock_gettime(CLOCK_MONOTONIC, &t1);
 	ms = (double)(t1.tv_sec - t0.tv_sec) * 1e3 +
 	     (double)(t1.tv_nsec - t0.tv_nsec) / 1e6;
-
+	if (rc != 0 && rc != QW_ENOMEM) {
+		fprintf(stderr, "quadwatch check: %s:%d: [group %s] model: "
+			"%s\n", c->path, g->line, g->name, err);
+		return QW_EXIT_USAGE;
+	}
 	if (d == NULL) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s]: cannot "
 			"build the detector (%zu channels): out of memory\n",
@@ -225,6 +234,7 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	steady = qw_detector_steady_limit(d);
 	nu = qw_detector_steady_nu(d);
 	scale = qw_detector_steady_scale(d);
+	meta.limit_emp = qw_detector_limit(d); /* a model's limit in force */
 	qw_detector_free(d);
 	if (!isfinite(steady)) {
 		fprintf(stderr, "quadwatch check: %s:%d: [group %s] half_life: "
@@ -253,6 +263,15 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 	chk_kv(2, "expected_alarms_per_day", "%.10g", par->alarms_per_day);
 	chk_kv(2, "fingerprint", "%016llx",
 	       (unsigned long long)qw_config_fingerprint(g));
+	if (g->model[0] != '\0') {
+		chk_kv(2, "model", "%s", g->model);
+		chk_kv(2, "model_use", "%s", g->model_use == QW_MODEL_WARM
+		       ? "warm" : "fixed");
+		chk_kv(2, "model_readings", "%llu",
+		       (unsigned long long)meta.used);
+		chk_kv(2, "model_limit_factor", "%.10g", meta.limit_factor);
+		chk_kv(2, "model_limit", "%.10g", meta.limit_emp);
+	}
 	return 0;
 }
 

@@ -17,5 +17,6 @@ int qw_cmd_check(int argc, char **argv);
 int qw_cmd_ctl(int argc, char **argv);
 int qw_cmd_relay(int argc, char **argv);
 int qw_cmd_keygen(int argc, char **argv);
+int qw_cmd_fit(int argc, char **argv);
 
 #endif

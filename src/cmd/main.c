@@ -15,6 +15,7 @@
 #pragma weak qw_cmd_ctl
 #pragma weak qw_cmd_relay
 #pragma weak qw_cmd_keygen
+#pragma weak qw_cmd_fit
 
 static const struct {
 	const char *name;
@@ -34,6 +35,9 @@ static const struct {
 	 "ctl ENDPOINT CMD            status | rebaseline GROUP | save | reload"},
 	{"relay", qw_cmd_relay, "relay FRONTEND BACKEND      fan-in of alerts"},
 	{"keygen", qw_cmd_keygen, "keygen [--force] NAME       CURVE key pair"},
+	{"fit", qw_cmd_fit,
+	 "fit -c FILE [--group G] [-o DIR] [--no-trim] INPUT...\n"
+	 "                            model from a healthy recording"},
 };
 
 static void usage(FILE *f)

@@ -18,6 +18,7 @@
 
 #include "cmd.h"
 #include "log.h"
+#include "model.h"
 #include "replay.h"
 #include "verdict.h"
 #include "wire.h"
@@ -108,12 +109,22 @@ static int rp_args(int argc, char **argv, struct replay_opts *o)
 static int rp_group_alloc(struct replay *rp, struct replay_group *g,
 			  const struct qw_group_conf *gc)
 {
+	char err[QW_CONFIG_ERR_MAX];
 	size_t p = gc->p;
+	int rc;
 
 	g->conf = gc;
 	g->open_trace = -1;
 	g->wanted = rp->o.group == NULL || strcmp(rp->o.group, gc->name) == 0;
-	g->det = qw_detector_alloc(&gc->params);
+	if (g->wanted) {
+		rc = qw_model_detector(gc, &g->det, NULL, err, sizeof err);
+		if (rc != 0 && rc != QW_ENOMEM) {
+			fprintf(stderr, "quadwatch replay: %s\n", err);
+			return QW_ERROR(QW_EFORMAT);
+		}
+	} else {
+		g->det = qw_detector_alloc(&gc->params);
+	}
 	g->idx = calloc(p, sizeof *g->idx);
 	g->x = calloc(p, sizeof *g->x);
 	g->top_count = calloc(p, sizeof *g->top_count);
@@ -181,9 +192,14 @@ static int rp_setup(struct replay *rp)
 	if (rp->groups == NULL || rp->batch == NULL ||
 	    rp->alert_buf == NULL || rp->events == NULL)
 		goto nomem;
-	for (i = 0; i < rp->cfg.ngroups; i++)
-		if (rp_group_alloc(rp, &rp->groups[i], &rp->cfg.groups[i]))
+	for (i = 0; i < rp->cfg.ngroups; i++) {
+		int rc = rp_group_alloc(rp, &rp->groups[i], &rp->cfg.groups[i]);
+
+		if (rc == QW_EFORMAT)
+			return QW_EXIT_USAGE; /* a model file refused */
+		if (rc != 0)
 			goto nomem;
+	}
 	return 0;
 nomem:
 	fprintf(stderr, "quadwatch replay: out of memory\n");

@@ -131,7 +131,15 @@ struct replay {
 	int progress_shown;          /* a progress line is on screen */
 	const char *cur_name;
 	uint64_t cur_done, cur_total;
+	/* another verb reading the same inputs (quadwatch fit): the prefix
+	 * of its messages, and where each reading goes instead of the
+	 * detector (NULL: replay itself) */
+	const char *prog;
+	void (*sink)(struct replay *rp, struct replay_group *g, double t,
+		     const double *x);
+	void *sink_ctx;
 };
+#define RP_PROG(rp) ((rp)->prog != NULL ? (rp)->prog : "quadwatch replay")
 
 #define RP_WARN_MAX 3    /* warnings per group (enum qw_summary_warn) */
 #define RP_WARN_LEN 512  /* bytes per warning text */

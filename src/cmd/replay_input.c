@@ -74,7 +74,7 @@ static int rp_csv_labels(struct replay *rp, struct qw_csvin *c)
 			shared = 1;
 	}
 	if (shared && qw_csvin_label(c, rp->o.labels, err, sizeof err) != 0) {
-		fprintf(stderr, "quadwatch replay: %s\n", err);
+		fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
 		return QW_EXIT_USAGE;
 	}
 	return 0;
@@ -104,7 +104,7 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 			continue;
 		}
 		if (rp->o.group != NULL) {
-			fprintf(stderr, "quadwatch replay: %s\n", err);
+			fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
 			return QW_EXIT_USAGE;
 		}
 		qw_log(QW_LOG_INFO, "%s (group %s not played from this file)",
@@ -118,8 +118,8 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 		}
 	}
 	if (nmapped == 0) {
-		fprintf(stderr, "quadwatch replay: %s: no group has all its "
-			"channels in this file:%s\n", path, why);
+		fprintf(stderr, "%s: %s: no group has all its "
+			"channels in this file:%s\n", RP_PROG(rp), path, why);
 		return QW_EXIT_USAGE;
 	}
 	return rp_csv_labels(rp, c);
@@ -156,7 +156,7 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	}
 	if (rc < 0) {
 		qw_replay_progress(rp, 1);
-		fprintf(stderr, "quadwatch replay: %s\n", qw_csvin_error(c));
+		fprintf(stderr, "%s: %s\n", RP_PROG(rp), qw_csvin_error(c));
 		return QW_EXIT_FAIL;
 	}
 	for (i = 0; i < rp->cfg.ngroups; i++)
@@ -173,7 +173,7 @@ static int rp_csv(struct replay *rp, const char *path)
 	int rc = qw_csvin_open(path, NULL, NULL, &c, err, sizeof err);
 
 	if (rc != 0) {
-		fprintf(stderr, "quadwatch replay: %s\n", err);
+		fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
 		return rc == QW_EFORMAT ? QW_EXIT_USAGE : QW_EXIT_FAIL;
 	}
 	rc = rp_csv_map(rp, c, path);
@@ -243,7 +243,7 @@ static int rp_capture(struct replay *rp, const char *path)
 	int rc = qw_capture_reader_open(path, rp->cfg.max_frame, &r);
 
 	if (rc != 0) {
-		fprintf(stderr, "quadwatch replay: %s: %s\n", path,
+		fprintf(stderr, "%s: %s: %s\n", RP_PROG(rp), path,
 			qw_strerror(rc));
 		return QW_EXIT_FAIL;
 	}
@@ -265,8 +265,9 @@ static int rp_capture(struct replay *rp, const char *path)
 	}
 	if (rc < 0) {
 		qw_replay_progress(rp, 1);
-		fprintf(stderr, "quadwatch replay: %s: after record %llu: "
-			"%s\n", path, (unsigned long long)n, qw_strerror(rc));
+		fprintf(stderr, "%s: %s: after record %llu: "
+			"%s\n", RP_PROG(rp), path, (unsigned long long)n,
+			qw_strerror(rc));
 		return QW_EXIT_FAIL;
 	}
 	return 0;
@@ -280,7 +281,7 @@ int qw_replay_input(struct replay *rp, const char *path)
 	rp->cur_done = 0;
 	rp->cur_total = 0;
 	if (rc < 0) {
-		fprintf(stderr, "quadwatch replay: %s: ", path);
+		fprintf(stderr, "%s: %s: ", RP_PROG(rp), path);
 		perror(NULL);
 		return QW_EXIT_FAIL;
 	}

@@ -164,10 +164,16 @@ void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 {
 	struct qw_result res;
 	double pv;
-	/* the core's warm-up test, taken before the reading is learned */
-	int warm = qw_ewcov_count(qw_detector_model(g->det))
-		   >= g->conf->params.warmup;
+	int warm;
 
+	if (rp->sink != NULL) {
+		rp->readings++;
+		rp->sink(rp, g, t, x);
+		return;
+	}
+	/* the core's warm-up test, taken before the reading is learned */
+	warm = qw_ewcov_count(qw_detector_model(g->det)) >=
+	       g->conf->params.warmup;
 	(void)qw_detector_add(g->det, t, x, &res); /* refusals: counted */
 	rp->readings++;
 	if (qw_detector_counters(g->det)->readings == 1)

@@ -17,6 +17,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "model.h"
 #include "run.h"
 #include "verdict.h"
 
@@ -103,6 +104,8 @@ static int run_params_equal(const struct qw_group_conf *a,
 	    x->learn != y->learn || x->relearn_after != y->relearn_after ||
 	    x->correct != y->correct)
 		return 0;
+	if (strcmp(a->model, b->model) != 0 || a->model_use != b->model_use)
+		return 0;
 	return memcmp(a->floor, b->floor, a->p * sizeof *a->floor) == 0;
 }
 
@@ -143,6 +146,8 @@ static int run_group_build(const struct run_daemon *dm, struct run_build *b,
 	long o = dm->groups != NULL
 		 ? qw_run_topic_find(dm, gc->name, strlen(gc->name)) : -1;
 	const struct run_group *old = o >= 0 ? &dm->groups[o] : NULL;
+	char err[QW_CONFIG_ERR_MAX];
+	int rc;
 
 	b->keep[i] = -1;
 	g->conf = gc;
@@ -157,10 +162,20 @@ static int run_group_build(const struct run_daemon *dm, struct run_build *b,
 			return 0;
 		}
 	}
-	g->det = qw_detector_alloc(&gc->params);
-	if (g->det == NULL)
-		return QW_ERROR(QW_ENOMEM);
-	if (old != NULL && old->fingerprint == g->fingerprint)
+	/* a fixed model is the reference: no checkpoint replaces it */
+	if (gc->model[0] != '\0' && gc->model_use == QW_MODEL_FIXED)
+		g->restore = 0;
+	if ((rc = qw_model_detector(gc, &g->det, NULL, err, sizeof err))) {
+		qw_log(QW_LOG_ERROR, "%s", err);
+		return rc == QW_ENOMEM ? rc : QW_ERROR(QW_EFORMAT);
+	}
+	if (gc->model[0] != '\0' && (old == NULL ||
+	    strcmp(old->conf->model, gc->model) != 0 ||
+	    old->conf->model_use != gc->model_use))
+		qw_log(QW_LOG_INFO, "group %s: model from %s (%s)", gc->name,
+		       gc->model, gc->model_use == QW_MODEL_FIXED ? "fixed"
+		       : "warm start");
+	else if (old != NULL && old->fingerprint == g->fingerprint)
 		run_transfer(old, g->det, gc->name);
 	else if (old != NULL)
 		qw_log(QW_LOG_INFO, "group %s: channels changed, learning "

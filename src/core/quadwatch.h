@@ -314,6 +314,105 @@ double qw_mewma_uprate(double h, unsigned dof, double rho);
  * when no h in range gives it.  A few thousand CDF calls. */
 double qw_mewma_limit(double rate, unsigned dof, double rho);
 
+/* ---- tail.c: score tails (peaks over threshold), Hotelling limits ------ */
+
+#define QW_TAIL_MIN_EXCESS 30 /* excesses below which no GPD is fitted */
+
+/* Generalised Pareto excess model P(Y > y) = (1 + xi y/sigma)^(-1/xi). */
+struct qw_gpd {
+	double xi;         /* shape (> 0: heavy tail, 0: exponential) */
+	double sigma;      /* scale, score units */
+	double loglik;     /* log-likelihood at (xi, sigma) */
+	size_t n;          /* excesses fitted */
+};
+
+/* Maximum-likelihood GPD fit of the n >= QW_TAIL_MIN_EXCESS excesses
+ * y[i] >= 0 (not all 0), location 0.  QW_EINVAL otherwise. */
+int qw_tail_gpd_fit(const double *y, size_t n, struct qw_gpd *out);
+/* Log-likelihood of y under GPD(xi, sigma), location 0; -Inf outside. */
+double qw_tail_gpd_loglik(const double *y, size_t n, double xi,
+			  double sigma);
+
+/* A tail model of n scores: the fraction above the threshold u is GPD. */
+struct qw_tail {
+	size_t n;          /* scores */
+	size_t nu;         /* of them above u, fitted */
+	double u;          /* threshold: the (n - nu)-th smallest score */
+	struct qw_gpd gpd; /* of the excesses over u */
+	const double *sorted; /* the caller's scores, sorted ascending */
+};
+
+/* Sorts s[0..n) ascending in place (all finite, >= 0) and fits a GPD to
+ * the floor(fraction n) largest over the next one.  s must outlive t.
+ * QW_EINVAL for bad scores, fraction outside (0, 1) or too few excesses. */
+int qw_tail_fit(double *s, size_t n, double fraction, struct qw_tail *t);
+/* Upper alpha quantile: the GPD beyond the threshold's share, the
+ * empirical quantile within it.  NaN when t holds no fit. */
+double qw_tail_quantile(const struct qw_tail *t, double alpha);
+/* P(score > q) under the GPD, for q above u (NaN below u). */
+double qw_tail_sf(const struct qw_tail *t, double q);
+/* Ascending heap sort of n doubles (no NaN), in place. */
+void qw_tail_sort(double *a, size_t n);
+/* Consistency factor of a Gaussian covariance estimated from the readings
+ * kept when q <= chi2_p^-1(keep): keep / P(chi2_{p+2} <= that). */
+double qw_tail_consistency(double keep, unsigned p);
+/* Hotelling T-squared limits from n readings (S with divisor n-1):
+ * Phase I (the readings themselves), beta form, and Phase II (a new
+ * reading), F form; see tail.c.  NaN outside their ranges. */
+double qw_tail_phase1_limit(double alpha, unsigned p, double n);
+double qw_tail_phase2_limit(double alpha, unsigned p, double n);
+
+/* ---- fit.c: a model from a healthy recording -------------------------- */
+
+struct qw_fit_opts {
+	double cstep_keep;  /* share kept by each concentration step (C-step,
+			       FAST-MCD); 1 = none.  Default 0.75 */
+	double trim_alpha;  /* reweighting: a reading whose chi-square
+			       p-value is below this is trimmed; 0 = no
+			       trimming at all.  Default 0.025 */
+	unsigned max_iter;  /* passes per stage before giving up on a fixed
+			       point.  Default 20 */
+	double tail_fraction; /* share of held-out scores in the GPD fit.
+			       Default 0.05 */
+};
+
+void qw_fit_opts_default(struct qw_fit_opts *o);
+
+struct qw_fit_result {
+	uint64_t readings;    /* offered */
+	uint64_t used;        /* learned by the final model */
+	uint64_t trimmed;     /* left out as far out */
+	unsigned csteps;      /* C-step passes of the final fit */
+	unsigned reweights;   /* reweighting passes of the final fit */
+	int converged;        /* both stages reached a fixed point */
+	double consistency;   /* factor applied to the final covariance */
+	double alpha;         /* per-reading alpha of the group */
+	double limit_gauss;   /* the fixed model's limit (Gaussian theory) */
+	double limit_factor;  /* empirical / Gaussian (1 when no tail) */
+	double limit_emp;     /* limit_gauss * limit_factor */
+	int tail_ok;          /* held-out scores sufficed for a tail fit */
+	struct qw_gpd gpd;    /* of held-out scores / their Gaussian limit */
+	double tail_u;        /* the threshold of that fit (limit units) */
+	uint64_t heldout;     /* held-out readings scored on all channels */
+	uint64_t bad_stretch; /* readings in runs of trimmed readings, kept
+				 out of the held-out scores (fit.c) */
+	double heldout_days;  /* heldout / rate / 86400 */
+	uint64_t ex_gauss, ex_emp;   /* held-out exceedances of each limit */
+	uint64_t alarms_gauss, alarms_emp; /* raised under the group's rule */
+};
+
+/* Fits the group par (any dynamics and mode) to the n readings t[i]
+ * (seconds, non-decreasing), x[i*p .. i*p+p) (NaN = missing), which the
+ * engineer calls healthy: a detector built from par with no forgetting
+ * and learn = all learns them, iteratively trimming readings the fit finds
+ * far out; two-fold held-out scores give the empirical limit.  *model
+ * gets the final detector (frozen; the caller frees it), its limit factor
+ * still 1.  QW_EINVAL for bad arguments, QW_ENODATA when too few readings
+ * are learnable, QW_ENOMEM. */
+int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
+	       size_t n, const struct qw_fit_opts *o, struct qw_fit_result *res,
+	       qw_detector **model);
+
 /* ---- explain.c --------------------------------------------------------- */
 
 /* Attribution of r = x - mu against the factor L (packed by columns, p x p)

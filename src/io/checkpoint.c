@@ -361,6 +361,11 @@ static int ckpt_read_file(const char *path, unsigned char **out, size_t *len)
 	return 0;
 }
 
+int qw_ckpt_read(const char *path, unsigned char **out, size_t *len)
+{
+	return ckpt_read_file(path, out, len);
+}
+
 int qw_ckpt_reject(const char *path, char *aside, size_t cap)
 {
 	long epoch = (long)(ckpt_now_ns() / 1000000000);

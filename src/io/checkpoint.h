@@ -97,6 +97,11 @@ int qw_ckpt_restore(const char *dir, const struct qw_ckpt_id *id,
 		    qw_detector *d, int64_t *saved_ns, char *err,
 		    size_t errlen);
 
+/* Reads the whole of path (at most QW_CKPT_FILE_MAX bytes) into a new
+ * buffer *out (the caller frees it).  0, QW_ENODATA (no file),
+ * QW_EOVERSIZE, QW_ENOMEM, or QW_EIO with errno set. */
+int qw_ckpt_read(const char *path, unsigned char **out, size_t *len);
+
 /* Renames path to path.rejected-EPOCH (EPOCH: wall-clock seconds; a
  * counter is appended when that name is taken).  The new name goes to
  * aside (cap bytes).  0 or QW_EIO. */

@@ -63,6 +63,12 @@ struct qw_mqtt_conf {
 	int reconnect_line;
 };
 
+/* model_use: how a group uses the model file of `quadwatch fit`. */
+enum qw_model_use {
+	QW_MODEL_FIXED = 0, /* frozen: Phase II against a fixed reference */
+	QW_MODEL_WARM = 1   /* the adaptive model starts from it */
+};
+
 struct qw_group_conf {
 	char name[QW_CONFIG_NAME_MAX];  /* section name = topic */
 	size_t p;                       /* channels */
@@ -72,6 +78,9 @@ struct qw_group_conf {
 	struct qw_params params;        /* params.floor points at floor */
 	int line;                       /* line of the section header */
 	int half_life_line;             /* line of half_life; 0 = default */
+	char model[1024];               /* model file of quadwatch fit;
+					   "" = learn from nothing */
+	int model_use;                  /* enum qw_model_use */
 };
 
 struct qw_config {

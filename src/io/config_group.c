@@ -26,6 +26,7 @@ enum grp_key {
 	GK_CHANNELS, GK_HALF_LIFE, GK_ALARMS, GK_RATE, GK_WARMUP, GK_PERSIST,
 	GK_CLEAR, GK_FLOOR, GK_LEARN, GK_RELEARN, GK_MODE, GK_CORRECT,
 	GK_DYNAMICS, GK_MAX_GAP, GK_SMOOTHING,
+	GK_MODEL, GK_MODEL_USE,
 	GK_COUNT
 };
 
@@ -298,6 +299,30 @@ static int grp_correct(struct cfg_parse *ps, const char *v)
 	return cfg_bad(ps, "expected yes or no; got '%s'", v);
 }
 
+/* model = PATH: a model file of `quadwatch fit` (read when the detector
+ * is built, not here: check, run and replay report a bad file). */
+static int grp_model(struct cfg_parse *ps, const char *v)
+{
+	size_t n = strlen(v);
+
+	if (n == 0 || n >= sizeof ps->grp.model)
+		return cfg_bad(ps, "expected the path of a model file from "
+				   "quadwatch fit (1 to %zu bytes)",
+			       sizeof ps->grp.model - 1);
+	memcpy(ps->grp.model, v, n + 1);
+	return 0;
+}
+
+static int grp_model_use(struct cfg_parse *ps, const char *v)
+{
+	if (strcasecmp(v, "fixed") == 0 || strcasecmp(v, "warm") == 0) {
+		ps->grp.model_use = strcasecmp(v, "warm") == 0
+				    ? QW_MODEL_WARM : QW_MODEL_FIXED;
+		return 0;
+	}
+	return cfg_bad(ps, "expected fixed or warm; got '%s'", v);
+}
+
 const struct cfg_key cfg_group_keys[GK_COUNT + 1] = {
 	[GK_CHANNELS] = {"channels", grp_channels, 1},
 	[GK_HALF_LIFE] = {"half_life", grp_half_life, 0},
@@ -314,6 +339,8 @@ const struct cfg_key cfg_group_keys[GK_COUNT + 1] = {
 	[GK_DYNAMICS] = {"dynamics", grp_dynamics, 0},
 	[GK_MAX_GAP] = {"max_gap", grp_max_gap, 0},
 	[GK_SMOOTHING] = {"smoothing", grp_smoothing, 0},
+	[GK_MODEL] = {"model", grp_model, 0},
+	[GK_MODEL_USE] = {"model_use", grp_model_use, 0},
 	[GK_COUNT] = {NULL, NULL, 0},
 };
 
@@ -451,6 +478,11 @@ int cfg_group_end(struct cfg_parse *ps)
 		return cfg_fail(ps, QW_ERROR(QW_EFORMAT), t->line, "channels",
 				"required key missing; expected a "
 				"comma-separated list of channel names");
+	if (ps->key_line[GK_MODEL_USE] && !ps->key_line[GK_MODEL])
+		return cfg_fail(ps, QW_ERROR(QW_EFORMAT),
+				ps->key_line[GK_MODEL_USE], "model_use",
+				"expected a model = PATH beside it (the model "
+				"file of quadwatch fit)");
 	if (t->nfloor > 1 && t->nfloor != t->p && t->p == 1)
 		return cfg_fail(ps, QW_ERROR(QW_EFORMAT),
 				ps->key_line[GK_FLOOR], "floor",
@@ -481,5 +513,7 @@ int cfg_group_end(struct cfg_parse *ps)
 	t->channels = NULL;
 	g->line = t->line;
 	g->half_life_line = ps->key_line[GK_HALF_LIFE];
+	memcpy(g->model, t->model, sizeof g->model);
+	g->model_use = t->model_use;
 	return grp_params(ps, g);
 }

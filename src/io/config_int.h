@@ -35,6 +35,8 @@ struct cfg_group_tmp {
 	double max_gap;                  /* seconds */
 	int mode;                        /* enum qw_mode */
 	double smoothing;                /* MEWMA rho */
+	char model[1024];                /* model file path as written */
+	int model_use;                   /* enum qw_model_use */
 };
 
 struct cfg_parse {

@@ -1,0 +1,284 @@
+/* sweep.c: the fused score + rank-one update sweep of ewcov.c (the maths
+ * is in ewcov.c's top comment).  Per column j, from the running residual u:
+ *   y_j = u_j / L_jj, the pivot scalars A_j = c g, B_j = c a_j y_j / g,
+ *   then for every row i > j:  u_i -= y_j L_ij;  L'_ij = A_j L_ij + B_j u_i.
+ *
+ * Blocking.  Columns go in blocks of SWEEP_NB = 4.  A block's top triangle
+ * (its own rows) is scalar work: column j's pivot needs u_j after every
+ * earlier column, so it is a chain of three dependent operations per
+ * column (u_j * 1/L_jj, y_j L_ij, the subtraction).  Below the triangle,
+ * each row i takes the block's four columns in order with u_i held in a
+ * register: one load and one store of u per row and block instead of per
+ * column.  The next block's triangle only needs its own four rows, so it
+ * is computed as soon as this block has finished them, ahead of the rest
+ * of this block's rows: the scalar chain of block k+1 runs beside the
+ * vector work of block k instead of after it.
+ *
+ * Same bits on every path.  Each element sees the same operations on the
+ * same operands in the same order whatever the blocking, the vector width
+ * or the clone: one column at a time, pairs (the earlier form) and blocks
+ * of four give identical factors, solved vectors and scores.  ISO C mode
+ * (-std=c11) keeps GCC from contracting a*b+c into FMA, and the vectors
+ * are GCC's generic vector types, whose lanes are plain IEEE operations.
+ *
+ * Variants: portable x86-64 (SSE2, two lanes), x86-64-v3 (AVX2, four) and
+ * x86-64-v4 (AVX-512, eight), one source instantiated three times; the
+ * loader picks one through an ifunc resolver (the CPU's ISA level), and
+ * qw_sweep_variant hands a test any variant the CPU can run.  Off x86-64
+ * only the portable form exists. */
+#include <math.h>
+#include <string.h>
+
+#include "internal.h"
+
+#define SWEEP_NB 4 /* columns per block: the body code is written for 4 */
+
+typedef double sweep_v2 __attribute__((vector_size(16)));
+typedef double sweep_v4 __attribute__((vector_size(32)));
+typedef double sweep_v8 __attribute__((vector_size(64)));
+
+/* Running state of one sweep: b = 1/a_j, 1/sqrt(b), the score so far. */
+struct sweep_state {
+	double b, isb, q, c;
+};
+
+/* One block of four columns j..j+3: their source and destination columns
+ * (indexed by row) and scalars. */
+struct sweep_blk {
+	const double *s0, *s1, *s2, *s3;
+	double *d0, *d1, *d2, *d3;
+	double y0, y1, y2, y3, A0, A1, A2, A3, B0, B1, B2, B3;
+};
+
+/* Column j's scalars once y_j is known: the pivot of the new factor and
+ * its inverse, and A = c g, B = c a_j y_j / g for the column's rows. */
+static inline __attribute__((always_inline)) void
+sweep_pivot(struct sweep_state *st, double yj, double s0, double *d0,
+	    double *id0, double *A, double *B)
+{
+	double b1 = st->b + yj * yj;          /* b_{j+1} */
+	double sb1 = sqrt(b1), isb1 = 1.0 / sb1;
+
+	*A = st->c * sb1 * st->isb;           /* c g */
+	*B = st->c * yj * st->isb * isb1;     /* c a_j y_j / g */
+	st->q += yj * yj;
+	*d0 = *A * s0;
+	/* 1/L'_jj from L'_jj itself, not carried as a product, so the
+	 * inverse pivots are a function of the factor alone (a restored
+	 * model scores bit for bit as the live one). */
+	*id0 = 1.0 / *d0;
+	st->b = b1;
+	st->isb = isb1;
+}
+
+/* Columns j..p-1 one at a time (fewer than four: the end of a sweep). */
+static inline __attribute__((always_inline)) void
+sweep_tail(struct sweep_state *st, const double *restrict src,
+	   const double *restrict isrc, double *restrict dst,
+	   double *restrict idst, size_t p, double *restrict u,
+	   double *restrict ys, size_t j)
+{
+	size_t i;
+
+	for (; j < p; j++) {
+		const double *s = src + qw_packed_col(p, j) - j;
+		double *d = dst + qw_packed_col(p, j) - j;
+		double yj = u[j] * isrc[j], A, B;
+
+		ys[j] = yj;
+		sweep_pivot(st, yj, s[j], &d[j], &idst[j], &A, &B);
+		for (i = j + 1; i < p; i++) {
+			double ui = u[i] - yj * s[i];
+
+			d[i] = A * s[i] + B * ui;
+			u[i] = ui;
+		}
+	}
+}
+
+/* The triangle of the block from column j (j + 4 <= p): first the chain of
+ * y's through the residuals of rows j+1..j+3, kept in registers (each y
+ * needs only the one before it), then the pivots (square roots and
+ * divisions, off that chain), then the triangle's other elements. */
+static inline __attribute__((always_inline)) void
+sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
+	   const double *restrict src, const double *restrict isrc,
+	   double *restrict dst, double *restrict idst, size_t p,
+	   double *restrict u, double *restrict ys, size_t j)
+{
+	size_t h = p - j, o = qw_packed_col(p, j) - j;
+	double e01, e02, e03, e12, e13, e23;
+
+	k->s0 = src + o;
+	k->s1 = k->s0 + h - 1;
+	k->s2 = k->s1 + h - 2;
+	k->s3 = k->s2 + h - 3;
+	k->d0 = dst + o;
+	k->d1 = k->d0 + h - 1;
+	k->d2 = k->d1 + h - 2;
+	k->d3 = k->d2 + h - 3;
+	k->y0 = u[j] * isrc[j];
+	e01 = u[j + 1] - k->y0 * k->s0[j + 1];
+	e02 = u[j + 2] - k->y0 * k->s0[j + 2];
+	e03 = u[j + 3] - k->y0 * k->s0[j + 3];
+	k->y1 = e01 * isrc[j + 1];
+	e12 = e02 - k->y1 * k->s1[j + 2];
+	e13 = e03 - k->y1 * k->s1[j + 3];
+	k->y2 = e12 * isrc[j + 2];
+	e23 = e13 - k->y2 * k->s2[j + 3];
+	k->y3 = e23 * isrc[j + 3];
+	sweep_pivot(st, k->y0, k->s0[j], &k->d0[j], &idst[j], &k->A0, &k->B0);
+	sweep_pivot(st, k->y1, k->s1[j + 1], &k->d1[j + 1], &idst[j + 1],
+		    &k->A1, &k->B1);
+	sweep_pivot(st, k->y2, k->s2[j + 2], &k->d2[j + 2], &idst[j + 2],
+		    &k->A2, &k->B2);
+	sweep_pivot(st, k->y3, k->s3[j + 3], &k->d3[j + 3], &idst[j + 3],
+		    &k->A3, &k->B3);
+	k->d0[j + 1] = k->A0 * k->s0[j + 1] + k->B0 * e01;
+	k->d0[j + 2] = k->A0 * k->s0[j + 2] + k->B0 * e02;
+	k->d0[j + 3] = k->A0 * k->s0[j + 3] + k->B0 * e03;
+	k->d1[j + 2] = k->A1 * k->s1[j + 2] + k->B1 * e12;
+	k->d1[j + 3] = k->A1 * k->s1[j + 3] + k->B1 * e13;
+	k->d2[j + 3] = k->A2 * k->s2[j + 3] + k->B2 * e23;
+	u[j + 1] = e01;
+	u[j + 2] = e12;
+	u[j + 3] = e23;
+	ys[j] = k->y0;
+	ys[j + 1] = k->y1;
+	ys[j + 2] = k->y2;
+	ys[j + 3] = k->y3;
+}
+
+/* Column n of block bk on rows [i, i + lanes of V): u_ in a register. */
+#define SWEEP_COL(V, bk, i, n)                                               \
+	do {                                                                 \
+		memcpy(&s_, (bk)->s##n + (i), sizeof s_);                    \
+		u_ = u_ - (bk)->y##n * s_;                                   \
+		d_ = (bk)->A##n * s_ + (bk)->B##n * u_;                      \
+		memcpy((bk)->d##n + (i), &d_, sizeof d_);                    \
+	} while (0)
+
+/* Rows [i, i + lanes of V) below block bk's triangle: its four columns in
+ * order, u_i in a register.  V is a vector type or double. */
+#define SWEEP_ROWS(V, bk, i)                                                 \
+	do {                                                                 \
+		V u_, s_, d_;                                                \
+		memcpy(&u_, u + (i), sizeof u_);                             \
+		SWEEP_COL(V, bk, i, 0);                                      \
+		SWEEP_COL(V, bk, i, 1);                                      \
+		SWEEP_COL(V, bk, i, 2);                                      \
+		SWEEP_COL(V, bk, i, 3);                                      \
+		memcpy(u + (i), &u_, sizeof u_);                             \
+	} while (0)
+
+/* Rows [i, e) of block bk, widest vector first, then narrower ones down
+ * to single rows; VW is the widest type of the variant. */
+#define SWEEP_SPAN(VW, bk, i, e)                                             \
+	do {                                                                 \
+		size_t r_ = (i);                                             \
+		for (; r_ + sizeof(VW) / sizeof(double) <= (e);              \
+		     r_ += sizeof(VW) / sizeof(double))                      \
+			SWEEP_ROWS(VW, bk, r_);                              \
+		if (sizeof(VW) > sizeof(sweep_v4) && r_ + 4 <= (e)) {        \
+			SWEEP_ROWS(sweep_v4, bk, r_);                        \
+			r_ += 4;                                             \
+		}                                                            \
+		if (sizeof(VW) > sizeof(sweep_v2) && r_ + 2 <= (e)) {        \
+			SWEEP_ROWS(sweep_v2, bk, r_);                        \
+			r_ += 2;                                             \
+		}                                                            \
+		if (r_ < (e))                                                \
+			SWEEP_ROWS(double, bk, r_);                          \
+	} while (0)
+
+/* The sweep for one variant (VW its widest vector type): see qw_sweep_fn
+ * in internal.h for the contract.  Per block: the rows of the next
+ * block's triangle, that triangle, then the rest of this block's rows. */
+#define SWEEP_DEFINE(NAME, VW)                                               \
+	static double NAME(const double *restrict src,                      \
+			   const double *restrict isrc, double *restrict dst, \
+			   double *restrict idst, size_t p,                   \
+			   double *restrict u, double *restrict ys, double a, \
+			   double c, size_t j0)                               \
+	{                                                                    \
+		struct sweep_state st = {1.0 / a, sqrt(a), 0.0, c};          \
+		struct sweep_blk cur, nxt;                                   \
+		size_t j = j0;                                               \
+                                                                             \
+		if (j0 + SWEEP_NB > p) {                                     \
+			sweep_tail(&st, src, isrc, dst, idst, p, u, ys, j0); \
+			return st.q;                                         \
+		}                                                            \
+		sweep_tri4(&st, &cur, src, isrc, dst, idst, p, u, ys, j);    \
+		for (j += SWEEP_NB; j + SWEEP_NB <= p; j += SWEEP_NB) {      \
+			SWEEP_SPAN(VW, &cur, j, j + SWEEP_NB);               \
+			sweep_tri4(&st, &nxt, src, isrc, dst, idst, p, u, ys, \
+				   j);                                       \
+			SWEEP_SPAN(VW, &cur, j + SWEEP_NB, p);               \
+			cur = nxt;                                           \
+		}                                                            \
+		if (j < p) {                                                 \
+			SWEEP_SPAN(VW, &cur, j, p);                          \
+			sweep_tail(&st, src, isrc, dst, idst, p, u, ys, j);  \
+		}                                                            \
+		return st.q;                                                 \
+	}
+
+#if defined(__x86_64__) && defined(__GNUC__)
+#pragma GCC push_options
+#pragma GCC target("arch=x86-64-v4,prefer-vector-width=512")
+SWEEP_DEFINE(sweep_v4_avx512, sweep_v8)
+#pragma GCC pop_options
+#pragma GCC push_options
+#pragma GCC target("arch=x86-64-v3")
+SWEEP_DEFINE(sweep_v3_avx2, sweep_v4)
+#pragma GCC pop_options
+#endif
+SWEEP_DEFINE(sweep_portable, sweep_v2)
+
+qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind)
+{
+	switch (kind) {
+	case QW_SWEEP_PORTABLE:
+		return sweep_portable;
+#if defined(__x86_64__) && defined(__GNUC__)
+	case QW_SWEEP_AVX2:
+		__builtin_cpu_init();
+		return __builtin_cpu_supports("x86-64-v3") ? sweep_v3_avx2
+							    : NULL;
+	case QW_SWEEP_AVX512:
+		__builtin_cpu_init();
+		return __builtin_cpu_supports("x86-64-v4") ? sweep_v4_avx512
+							    : NULL;
+#endif
+	default:
+		return NULL;
+	}
+}
+
+#if defined(__x86_64__) && defined(__GNUC__) && defined(__ELF__)
+/* Runs once, when the loader resolves qw_sweep: the widest variant the CPU
+ * runs. */
+static qw_sweep_fn sweep_resolve(void)
+{
+	__builtin_cpu_init();
+	if (__builtin_cpu_supports("x86-64-v4"))
+		return sweep_v4_avx512;
+	if (__builtin_cpu_supports("x86-64-v3"))
+		return sweep_v3_avx2;
+	return sweep_portable;
+}
+
+double qw_sweep(const double *restrict src, const double *restrict isrc,
+		double *restrict dst, double *restrict idst, size_t p,
+		double *restrict u, double *restrict ys, double a, double c,
+		size_t j0) __attribute__((ifunc("sweep_resolve")));
+#else
+double qw_sweep(const double *restrict src, const double *restrict isrc,
+		double *restrict dst, double *restrict idst, size_t p,
+		double *restrict u, double *restrict ys, double a, double c,
+		size_t j0)
+{
+	return sweep_portable(src, isrc, dst, idst, p, u, ys, a, c, j0);
+}
+#endif

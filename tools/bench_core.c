@@ -15,6 +15,7 @@
 #include <gsl/gsl_rng.h>
 #include <gsl/gsl_randist.h>
 
+#include "internal.h"
 #include "quadwatch.h"
 
 #define BENCH_RUNS 7           /* runs per size; the median is reported */
@@ -139,8 +140,10 @@ int main(void)
 	size_t i, j;
 
 	gsl_set_error_handler_off();
-	printf("core: ns per reading (score + update), median of %d runs\n",
-	       BENCH_RUNS);
+	printf("core: ns per reading (score + update), median of %d runs; "
+	       "sweep variant %s\n", BENCH_RUNS,
+	       qw_sweep_variant(QW_SWEEP_AVX512) ? "AVX-512" :
+	       qw_sweep_variant(QW_SWEEP_AVX2) ? "AVX2" : "portable");
 	printf("%5s %12s %14s %8s %14s\n", "p", "quadwatch", "naive refactor",
 	       "ratio", "state bytes");
 	for (i = 0; i < sizeof sizes / sizeof sizes[0]; i++) {

@@ -5,14 +5,16 @@
  *
  * Blocking.  Columns go in blocks of SWEEP_NB = 4.  A block's top triangle
  * (its own rows) is scalar work: column j's pivot needs u_j after every
- * earlier column, so it is a chain of three dependent operations per
- * column (u_j * 1/L_jj, y_j L_ij, the subtraction).  Below the triangle,
- * each row i takes the block's four columns in order with u_i held in a
- * register: one load and one store of u per row and block instead of per
- * column.  The next block's triangle only needs its own four rows, so it
- * is computed as soon as this block has finished them, ahead of the rest
- * of this block's rows: the scalar chain of block k+1 runs beside the
- * vector work of block k instead of after it.
+ * earlier column, so the y's form a chain of three dependent operations
+ * per column (u_j * 1/L_jj, y_j L_ij, the subtraction).  The triangle runs
+ * that chain first, in registers, and only then the square roots and
+ * divisions of the pivots, which nothing on the chain waits for.  Below
+ * the triangle, each row i takes the block's four columns in order with
+ * u_i held in a register: one load and one store of u per row and block
+ * instead of per column.  The next block's triangle needs only its own
+ * four rows, the first this block's rows finish, so out-of-order execution
+ * starts the next chain while the rest of the rows stream (moving that
+ * triangle ahead of the rows by hand measured slower at p >= 64).
  *
  * Same bits on every path.  Each element sees the same operations on the
  * same operands in the same order whatever the blocking, the vector width
@@ -32,6 +34,7 @@
 #include "internal.h"
 
 #define SWEEP_NB 4 /* columns per block: the body code is written for 4 */
+#define SWEEP_WIDE_MIN 32 /* rows below which AVX-512 uses 4 lanes */
 
 typedef double sweep_v2 __attribute__((vector_size(16)));
 typedef double sweep_v4 __attribute__((vector_size(32)));
@@ -172,17 +175,21 @@ sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
 	} while (0)
 
 /* Rows [i, e) of block bk, widest vector first, then narrower ones down
- * to single rows; VW is the widest type of the variant. */
+ * to single rows; VW is the widest type of the variant.  Eight-lane
+ * vectors only on spans of SWEEP_WIDE_MIN rows or more: on shorter ones
+ * four-lane ones measured as fast or faster (fewer tails, fewer accesses
+ * split across cache lines). */
 #define SWEEP_SPAN(VW, bk, i, e)                                             \
 	do {                                                                 \
 		size_t r_ = (i);                                             \
-		for (; r_ + sizeof(VW) / sizeof(double) <= (e);              \
-		     r_ += sizeof(VW) / sizeof(double))                      \
-			SWEEP_ROWS(VW, bk, r_);                              \
-		if (sizeof(VW) > sizeof(sweep_v4) && r_ + 4 <= (e)) {        \
-			SWEEP_ROWS(sweep_v4, bk, r_);                        \
-			r_ += 4;                                             \
-		}                                                            \
+		if (sizeof(VW) <= sizeof(sweep_v4) ||                        \
+		    r_ + SWEEP_WIDE_MIN <= (e))                              \
+			for (; r_ + sizeof(VW) / sizeof(double) <= (e);      \
+			     r_ += sizeof(VW) / sizeof(double))              \
+				SWEEP_ROWS(VW, bk, r_);                      \
+		if (sizeof(VW) > sizeof(sweep_v4))                           \
+			for (; r_ + 4 <= (e); r_ += 4)                       \
+				SWEEP_ROWS(sweep_v4, bk, r_);                \
 		if (sizeof(VW) > sizeof(sweep_v2) && r_ + 2 <= (e)) {        \
 			SWEEP_ROWS(sweep_v2, bk, r_);                        \
 			r_ += 2;                                             \
@@ -192,8 +199,8 @@ sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
 	} while (0)
 
 /* The sweep for one variant (VW its widest vector type): see qw_sweep_fn
- * in internal.h for the contract.  Per block: the rows of the next
- * block's triangle, that triangle, then the rest of this block's rows. */
+ * in internal.h for the contract.  Per block: its triangle, then its rows
+ * below; the columns left over (fewer than four) one at a time. */
 #define SWEEP_DEFINE(NAME, VW)                                               \
 	static double NAME(const double *restrict src,                      \
 			   const double *restrict isrc, double *restrict dst, \
@@ -202,25 +209,15 @@ sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
 			   double c, size_t j0)                               \
 	{                                                                    \
 		struct sweep_state st = {1.0 / a, sqrt(a), 0.0, c};          \
-		struct sweep_blk cur, nxt;                                   \
+		struct sweep_blk blk;                                        \
 		size_t j = j0;                                               \
                                                                              \
-		if (j0 + SWEEP_NB > p) {                                     \
-			sweep_tail(&st, src, isrc, dst, idst, p, u, ys, j0); \
-			return st.q;                                         \
-		}                                                            \
-		sweep_tri4(&st, &cur, src, isrc, dst, idst, p, u, ys, j);    \
-		for (j += SWEEP_NB; j + SWEEP_NB <= p; j += SWEEP_NB) {      \
-			SWEEP_SPAN(VW, &cur, j, j + SWEEP_NB);               \
-			sweep_tri4(&st, &nxt, src, isrc, dst, idst, p, u, ys, \
+		for (; j + SWEEP_NB <= p; j += SWEEP_NB) {                   \
+			sweep_tri4(&st, &blk, src, isrc, dst, idst, p, u, ys, \
 				   j);                                       \
-			SWEEP_SPAN(VW, &cur, j + SWEEP_NB, p);               \
-			cur = nxt;                                           \
+			SWEEP_SPAN(VW, &blk, j + SWEEP_NB, p);               \
 		}                                                            \
-		if (j < p) {                                                 \
-			SWEEP_SPAN(VW, &cur, j, p);                          \
-			sweep_tail(&st, src, isrc, dst, idst, p, u, ys, j);  \
-		}                                                            \
+		sweep_tail(&st, src, isrc, dst, idst, p, u, ys, j);          \
 		return st.q;                                                 \
 	}
 

@@ -254,8 +254,9 @@ qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind)
 }
 
 #if defined(__x86_64__) && defined(__GNUC__) && defined(__ELF__)
-/* Runs once, when the loader resolves qw_sweep: the widest variant the CPU
- * runs. */
+/* Runs once, when the loader resolves qw_sweep (before any sanitizer is
+ * set up, hence not instrumented): the widest variant the CPU runs. */
+__attribute__((no_sanitize_address, no_sanitize("undefined")))
 static qw_sweep_fn sweep_resolve(void)
 {
 	__builtin_cpu_init();

@@ -5,7 +5,8 @@
  * The stream holds what a frame can carry: partial readings (NaN
  * channels), a reading with an infinite channel in the middle of a frame,
  * time going backwards (time-based half-life), a shift that raises and
- * clears inside frames.  Oracle: the one-by-one path itself. */
+ * clears inside frames; per reading, time-based, and with VAR(1)
+ * whitening and the MEWMA statistic.  Oracle: the one-by-one path. */
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
@@ -57,16 +58,24 @@ static void b_stream(double *t, double *x, int time_back)
 	gsl_rng_free(rng);
 }
 
-static qw_detector *b_detector(int time_based)
+/* Configurations: per reading, time-based, and per reading with VAR(1)
+ * whitening and the MEWMA statistic. */
+enum { B_READINGS = 0, B_TIME = 1, B_VAR1_MEWMA = 2 };
+
+static qw_detector *b_detector(int kind)
 {
 	struct qw_params par;
 
 	qw_params_default(&par, B_P);
-	par.half_life = time_based ? 20.0 : 200.0;
-	par.time_based = time_based;
+	par.half_life = kind == B_TIME ? 20.0 : 200.0;
+	par.time_based = kind == B_TIME;
 	par.rate = 10.0;
 	par.alarms_per_day = 8.64; /* alpha 1e-5 at 10 Hz */
 	par.learn = QW_LEARN_SKIP;
+	if (kind == B_VAR1_MEWMA) {
+		par.dynamics = QW_DYN_VAR1;
+		par.mode = QW_MODE_MEWMA;
+	}
 	return qw_detector_alloc(&par);
 }
 
@@ -83,25 +92,31 @@ static void b_same_result(const struct qw_result *a, const struct qw_result *b,
 		fail_msg("reading %zu: batch result differs", k);
 }
 
+/* Field by field: struct qw_contrib has padding. */
 static void b_same_contrib(const struct qw_result *a,
 			   const struct qw_result *b, size_t k)
 {
-	if (a->ncontrib > 0 &&
-	    memcmp(a->contrib, b->contrib,
-		   a->ncontrib * sizeof *a->contrib) != 0)
-		fail_msg("reading %zu: batch attribution differs", k);
+	size_t i;
+
+	for (i = 0; i < a->ncontrib; i++)
+		if (a->contrib[i].channel != b->contrib[i].channel ||
+		    memcmp(&a->contrib[i].drop, &b->contrib[i].drop,
+			   sizeof(double)) != 0 ||
+		    memcmp(&a->contrib[i].z, &b->contrib[i].z,
+			   sizeof(double)) != 0)
+			fail_msg("reading %zu: batch attribution differs", k);
 }
 
 /* Runs the stream both ways; returns 1 when every check of equality
  * passed and the final states are identical, else 0 (after fail_msg).
  * flip: a reading index whose channel 0 the batch side sees scaled by
  * 1 + 1e-9 (the broken case), or B_N for none. */
-static int b_run(int time_based, size_t flip, int *early_stops)
+static int b_run(int kind, size_t flip, int *early_stops)
 {
 	double *t = malloc(B_N * sizeof(double));
 	double *x = malloc(B_N * B_P * sizeof(double));
 	double *xb = malloc(B_N * B_P * sizeof(double));
-	qw_detector *one = b_detector(time_based), *bat = b_detector(time_based);
+	qw_detector *one = b_detector(kind), *bat = b_detector(kind);
 	struct qw_result ra, rb[B_FRAME];
 	int rc[B_FRAME], same;
 	size_t f, k, m, i;
@@ -109,7 +124,7 @@ static int b_run(int time_based, size_t flip, int *early_stops)
 	size_t len;
 
 	assert_true(one != NULL && bat != NULL);
-	b_stream(t, x, time_based);
+	b_stream(t, x, kind == B_TIME);
 	memcpy(xb, x, B_N * B_P * sizeof(double));
 	if (flip < B_N)
 		xb[flip * B_P] *= 1.0 + 1e-9;
@@ -153,17 +168,18 @@ static int b_run(int time_based, size_t flip, int *early_stops)
 		      sizeof(struct qw_counters)) == 0;
 	if (flip == B_N) {
 		const struct qw_counters *c = qw_detector_counters(one);
+		const char *name[] = {"per reading", "time-based",
+				      "VAR(1) + MEWMA"};
 
 		/* The stream did hold what it was built to hold. */
 		assert_true(c->partial >= 3);
 		assert_int_equal(c->rej_nonfinite, 1);
 		assert_int_equal(c->rej_empty, 1);
-		assert_int_equal(c->rej_time, time_based ? 1 : 0);
+		assert_int_equal(c->rej_time, kind == B_TIME ? 1 : 0);
 		assert_true(c->alarms >= 1);
 		print_message("# %s: %zu readings in frames of %d, %d calls "
 			      "stopped early at an event, %llu alarms\n",
-			      time_based ? "time-based" : "per reading",
-			      (size_t)B_N, B_FRAME, *early_stops,
+			      name[kind], (size_t)B_N, B_FRAME, *early_stops,
 			      (unsigned long long)c->alarms);
 	}
 	free(sa), free(sb), free(t), free(x), free(xb);
@@ -177,7 +193,7 @@ static void batch_equals_one_by_one(void **s)
 	int stops;
 
 	(void)s;
-	assert_true(b_run(0, B_N, &stops));
+	assert_true(b_run(B_READINGS, B_N, &stops));
 	assert_true(stops >= 2); /* the raise and the clear */
 }
 
@@ -186,7 +202,16 @@ static void batch_equals_one_by_one_time(void **s)
 	int stops;
 
 	(void)s;
-	assert_true(b_run(1, B_N, &stops));
+	assert_true(b_run(B_TIME, B_N, &stops));
+	assert_true(stops >= 2);
+}
+
+static void batch_equals_one_by_one_var1_mewma(void **s)
+{
+	int stops;
+
+	(void)s;
+	assert_true(b_run(B_VAR1_MEWMA, B_N, &stops));
 	assert_true(stops >= 2);
 }
 
@@ -197,13 +222,13 @@ static void batch_flip_shows(void **s)
 	int stops;
 
 	(void)s;
-	assert_false(b_run(0, 123, &stops));
+	assert_false(b_run(B_READINGS, 123, &stops));
 }
 
 /* n = 0 takes nothing; a frame that is all rejections takes all. */
 static void batch_edges(void **s)
 {
-	qw_detector *d = b_detector(0);
+	qw_detector *d = b_detector(B_READINGS);
 	double t[3] = {0, 1, 2}, x[3 * B_P];
 	struct qw_result res[3];
 	int rc[3];
@@ -226,6 +251,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(batch_equals_one_by_one),
 		cmocka_unit_test(batch_equals_one_by_one_time),
+		cmocka_unit_test(batch_equals_one_by_one_var1_mewma),
 		cmocka_unit_test(batch_flip_shows),
 		cmocka_unit_test(batch_edges),
 	};

@@ -199,7 +199,7 @@ static void avx2_vs_portable(void **s)
 
 	(void)s;
 	if (n == 0) {
-		print_message("# skip: this CPU lacks x86-64-v3 (AVX2)\n");
+		print_message("# skip: this CPU (or build) lacks x86-64-v3 (AVX2)\n");
 		skip();
 	}
 	print_message("# AVX2 sweep: %zu cases bit-identical\n", n);
@@ -211,7 +211,7 @@ static void avx512_vs_portable(void **s)
 
 	(void)s;
 	if (n == 0) {
-		print_message("# skip: this CPU lacks x86-64-v4 (AVX-512)\n");
+		print_message("# skip: this CPU (or build) lacks x86-64-v4 (AVX-512)\n");
 		skip();
 	}
 	print_message("# AVX-512 sweep: %zu cases bit-identical\n", n);

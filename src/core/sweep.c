@@ -26,12 +26,21 @@
  * Variants: portable x86-64 (SSE2, two lanes), x86-64-v3 (AVX2, four) and
  * x86-64-v4 (AVX-512, eight), one source instantiated three times; the
  * loader picks one through an ifunc resolver (the CPU's ISA level), and
- * qw_sweep_variant hands a test any variant the CPU can run.  Off x86-64
- * only the portable form exists. */
+ * qw_sweep_variant hands a test any variant the CPU can run.  Off x86-64,
+ * or built by another compiler than GCC, only the portable form exists. */
 #include <math.h>
 #include <string.h>
 
 #include "internal.h"
+
+/* The AVX2 and AVX-512 builds need GCC's target pragmas and ISA-level CPU
+ * checks; other compilers (clang for the fuzz harnesses) build the
+ * portable form alone, which gives the same bits. */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#define SWEEP_CLONES 1
+#else
+#define SWEEP_CLONES 0
+#endif
 
 #define SWEEP_NB 4 /* columns per block: the body code is written for 4 */
 #define SWEEP_WIDE_MIN 32 /* rows below which AVX-512 uses 4 lanes */
@@ -221,7 +230,7 @@ sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
 		return st.q;                                                 \
 	}
 
-#if defined(__x86_64__) && defined(__GNUC__)
+#if SWEEP_CLONES
 #pragma GCC push_options
 #pragma GCC target("arch=x86-64-v4,prefer-vector-width=512")
 SWEEP_DEFINE(sweep_v4_avx512, sweep_v8)
@@ -238,7 +247,7 @@ qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind)
 	switch (kind) {
 	case QW_SWEEP_PORTABLE:
 		return sweep_portable;
-#if defined(__x86_64__) && defined(__GNUC__)
+#if SWEEP_CLONES
 	case QW_SWEEP_AVX2:
 		__builtin_cpu_init();
 		return __builtin_cpu_supports("x86-64-v3") ? sweep_v3_avx2
@@ -253,7 +262,7 @@ qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind)
 	}
 }
 
-#if defined(__x86_64__) && defined(__GNUC__) && defined(__ELF__)
+#if SWEEP_CLONES && defined(__ELF__)
 /* Runs once, when the loader resolves qw_sweep (before any sanitizer is
  * set up, hence not instrumented): the widest variant the CPU runs. */
 __attribute__((no_sanitize_address, no_sanitize("undefined")))

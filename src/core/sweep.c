@@ -24,7 +24,7 @@
  * are GCC's generic vector types, whose lanes are plain IEEE operations.
  *
  * Variants: portable x86-64 (SSE2, two lanes), x86-64-v3 (AVX2, four) and
- * x86-64-v4 (AVX-512, eight), one source instantiated three times; the
+ * x86-64-v4 (AVX-512, eight on long spans), one source built three times; the
  * loader picks one through an ifunc resolver (the CPU's ISA level), and
  * qw_sweep_variant hands a test any variant the CPU can run.  Off x86-64,
  * or built by another compiler than GCC, only the portable form exists. */

@@ -2,8 +2,9 @@
  *
  * Steps per message: look the topic up (hash table, run_setup.c), check the
  * frame count and size, decode into the shared preallocated batch
- * (qw_wire_decode), account sequence gaps, then pass each reading to the
- * group's detector; a raise or clear goes out on the alert socket at once.
+ * (qw_wire_decode), account sequence gaps, then pass the readings to the
+ * group's detector a frame at a time (qw_detector_add_batch); a raise or
+ * clear goes out on the alert socket at once.
  * Every refusal is counted by cause and logged at a bounded rate.
  *
  * Sequence accounting is per group: the seq expected next is the last
@@ -132,20 +133,34 @@ void qw_run_alert_rebaseline(struct run_daemon *dm, struct run_group *g)
 	run_send_alert(dm, g, &a);
 }
 
-static void run_reading(struct run_daemon *dm, struct run_group *g,
-			double t, const double *x)
-{
-	struct qw_result res;
-	int rc = qw_detector_add(g->det, t, x, &res);
+/* Readings scored per qw_detector_add_batch call (results on the stack). */
+#define RUN_FRAME_CHUNK 64
 
-	dm->tot.readings++;
-	g->last_t = t;
-	if (rc != 0)
-		qw_log_limited(&dm->reject_log, QW_LOG_WARN,
-			       "group %s: reading at %.3f refused: %s",
-			       g->conf->name, t, qw_strerror(rc));
-	if (res.event != QW_EVENT_NONE)
-		qw_run_alert(dm, g, t, &res);
+/* The decoded frame b through the group's detector, a chunk per call; a
+ * call stops early at a raise or clear, published before going on. */
+static void run_readings(struct run_daemon *dm, struct run_group *g,
+			 const struct qw_wire_batch *b)
+{
+	struct qw_result res[RUN_FRAME_CHUNK];
+	int rc[RUN_FRAME_CHUNK];
+	size_t k = 0, m, i;
+
+	while (k < b->n) {
+		m = b->n - k < RUN_FRAME_CHUNK ? b->n - k : RUN_FRAME_CHUNK;
+		m = qw_detector_add_batch(g->det, m, b->t + k, b->x + k * b->p,
+					  res, rc);
+		dm->tot.readings += m;
+		for (i = 0; i < m; i++)
+			if (rc[i] != 0)
+				qw_log_limited(&dm->reject_log, QW_LOG_WARN,
+					       "group %s: reading at %.3f "
+					       "refused: %s", g->conf->name,
+					       b->t[k + i], qw_strerror(rc[i]));
+		g->last_t = b->t[k + m - 1];
+		if (res[m - 1].event != QW_EVENT_NONE)
+			qw_run_alert(dm, g, b->t[k + m - 1], &res[m - 1]);
+		k += m;
+	}
 }
 
 /* Message m: topic, frames, decode, readings. */
@@ -154,7 +169,6 @@ int qw_run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 	struct qw_wire_batch b;
 	struct run_group *g;
 	long gi = -1;
-	size_t k;
 	int rc;
 
 	dm->tot.received++;
@@ -184,8 +198,7 @@ int qw_run_message(struct run_daemon *dm, const struct qw_bus_msg *m)
 	dm->tot.decoded++;
 	if (b.has_seq)
 		run_seq(g, b.seq, b.n);
-	for (k = 0; k < b.n; k++)
-		run_reading(dm, g, b.t[k], b.x + k * b.p);
+	run_readings(dm, g, &b);
 	return -1;
 }
 

@@ -29,10 +29,11 @@
  * not learned costs one sweep and leaves the model bit for bit as it was.
  *
  * Storage: both factors packed by columns, so the inner loop runs over
- * contiguous memory and vectorises.  The sweep is cloned for AVX-512,
- * AVX2 and baseline x86-64 (chosen at load time); ISO C mode keeps GCC
- * from contracting a*b+c into FMA, and every element is computed on its
- * own, so all clones give the same bits: a model moves between machines
+ * contiguous memory and vectorises.  The sweep itself is in sweep.c:
+ * blocks of four columns, built for AVX-512, AVX2 and baseline x86-64
+ * (chosen at load time); ISO C mode keeps GCC from contracting a*b+c into
+ * FMA, and every element sees the same operations in the same order on
+ * every path, so all give the same bits: a model moves between machines
  * and a replay matches the daemon exactly.  Workload: one sweep of p(p+1)/2
  * elements per reading, p from 1 to a few hundred.
  *
@@ -223,89 +224,6 @@ void qw_ewcov_first(qw_ewcov *ew, const double *x)
 	ew->W2 = 0.0;
 }
 
-/* Running state of one sweep: b = 1/a_j, 1/sqrt(b), the score so far. */
-struct sweep_state {
-	double b, isb, q, c;
-};
-
-/* Column j's scalars: y_j from the residual, the pivot of the new factor
- * and its inverse, and A = c g, B = c a_j y_j / g for the column's body. */
-static inline void sweep_pivot(struct sweep_state *st, double uj,
-			       double s0, double is0, double *d0,
-			       double *id0, double *y, double *A, double *B)
-{
-	double yj = uj * is0;
-	double b1 = st->b + yj * yj;          /* b_{j+1} */
-	double sb1 = sqrt(b1), isb1 = 1.0 / sb1;
-
-	*A = st->c * sb1 * st->isb;           /* c g */
-	*B = st->c * yj * st->isb * isb1;     /* c a_j y_j / g */
-	*y = yj;
-	st->q += yj * yj;
-	*d0 = *A * s0;
-	/* 1/L'_jj from L'_jj itself, not carried as a product, so the
-	 * inverse pivots are a function of the factor alone (a restored
-	 * model scores bit for bit as the live one). */
-	*id0 = 1.0 / *d0;
-	st->b = b1;
-	st->isb = isb1;
-}
-
-/* The fused sweep: from u = r (overwritten), the factor src with inverse
- * pivots isrc, and weight a (the update is src src' + a r r', then scaled
- * by c), writes dst and idst, the solved vector ys = src^-1 r (columns
- * from j0 on) and returns q = |src^-1 r|^2.  j0: the first
- * column where r is non-zero; the columns before it are copied.  Columns go
- * in pairs: u_i stays in a register across both, which saves a load and a
- * store per element; each element sees the same operations in the same
- * order as one column at a time. */
-__attribute__((target_clones("arch=x86-64-v4", "arch=x86-64-v3", "default")))
-static double ewcov_sweep(const double *restrict src,
-			  const double *restrict isrc, double *restrict dst,
-			  double *restrict idst, size_t p, double *restrict u,
-			  double *restrict ys, double a, double c, size_t j0)
-{
-	struct sweep_state st = {1.0 / a, sqrt(a), 0.0, c};
-	size_t j = j0, i, off = qw_packed_col(p, j0);
-
-	if (j0 > 0) {
-		memcpy(dst, src, off * sizeof *dst);
-		memcpy(idst, isrc, j0 * sizeof *idst);
-	}
-	for (; j + 1 < p; j += 2) {
-		const double *restrict s = src + off;
-		const double *restrict t = s + (p - j); /* column j+1 */
-		double *restrict d = dst + off, *restrict e = d + (p - j);
-		double y0, A0, B0, y1, A1, B1, u1;
-
-		sweep_pivot(&st, u[j], s[0], isrc[j], &d[0], &idst[j], &y0,
-			    &A0, &B0);
-		u1 = u[j + 1] - y0 * s[1];
-		d[1] = A0 * s[1] + B0 * u1;
-		sweep_pivot(&st, u1, t[0], isrc[j + 1], &e[0], &idst[j + 1],
-			    &y1, &A1, &B1);
-		ys[j] = y0;
-		ys[j + 1] = y1;
-		for (i = j + 2; i < p; i++) {
-			double ui = u[i] - y0 * s[i - j];
-
-			d[i - j] = A0 * s[i - j] + B0 * ui;
-			ui -= y1 * t[i - j - 1];
-			e[i - j - 1] = A1 * t[i - j - 1] + B1 * ui;
-			u[i] = ui;
-		}
-		off += 2 * (p - j) - 1;
-	}
-	if (j < p) { /* the last column of an odd count: its pivot only */
-		double y0, A0, B0;
-
-		sweep_pivot(&st, u[j], src[off], isrc[j], &dst[off], &idst[j],
-			    &y0, &A0, &B0);
-		ys[j] = y0;
-	}
-	return st.q;
-}
-
 /* Installs the factor in Ln as the current one. */
 static void ewcov_swap(qw_ewcov *ew)
 {
@@ -329,8 +247,8 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 		ew->r[i] = x[i] - ew->mu[i];
 		ew->u[i] = ew->r[i];
 	}
-	qq = ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
-			 sqrt(1.0 - w), 0);
+	qq = qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
+		      sqrt(1.0 - w), 0);
 	/* q finite implies every y_j, g and so every new element finite. */
 	if (!isfinite(qq))
 		return QW_ERROR(QW_ERANGE);
@@ -342,7 +260,10 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 
 /* Adds (1 - f) F back into the factor: p rank-one updates with vectors
  * sqrt((1-f) F_ii) e_i, each starting at column i (through the second
- * buffer, so the sweep never works in place). */
+ * buffer, so the sweep never works in place).  Update i leaves columns
+ * before i as they are, so after it both buffers agree on columns < i:
+ * the next update needs only column i copied across, not the whole
+ * prefix. */
 static void ewcov_topup(qw_ewcov *ew)
 {
 	size_t i, p = ew->p;
@@ -350,10 +271,17 @@ static void ewcov_topup(qw_ewcov *ew)
 
 	if (add > 0.0) {
 		for (i = 0; i < p; i++) {
+			if (i > 0) {
+				size_t o = qw_packed_col(p, i - 1);
+
+				memcpy(ew->Ln + o, ew->L + o,
+				       (p - i + 1) * sizeof *ew->L);
+				ew->iLn[i - 1] = ew->iL[i - 1];
+			}
 			memset(ew->u, 0, p * sizeof *ew->u);
 			ew->u[i] = sqrt(add * ew->floorsq[i]);
-			ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u,
-				    ew->y, 1.0, 1.0, i);
+			qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y,
+				 1.0, 1.0, i);
 			ewcov_swap(ew);
 		}
 	}
@@ -375,8 +303,8 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 			ew->r[i] *= gain;
 			ew->u[i] = ew->r[i];
 		}
-		ewcov_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y,
-			    w, sqrt(1.0 - w), 0);
+		qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
+			 sqrt(1.0 - w), 0);
 	}
 	ewcov_swap(ew);
 	for (i = 0; i < p; i++)

@@ -91,4 +91,34 @@ int qw_ewcov_state_check(qw_ewcov *ew, const void *buf, size_t len);
 /* ewcov.c: multiplies the model's covariance (and floor share) by s > 0. */
 void qw_ewcov_rescale(qw_ewcov *ew, double s);
 
+/* ---- sweep.c: the fused score + rank-one update (ewcov.c's maths) ---- */
+
+/* From u = r (overwritten: the residual after the sweep), the packed
+ * factor src with inverse pivots isrc (1/L_jj) and weight a (the update is
+ * src src' + a r r', then scaled by c^2): writes the new factor's columns
+ * j0..p-1 to dst and their inverse pivots to idst, the solved vector
+ * ys[j0..p-1] = (src^-1 r)[j0..], and returns |src^-1 r|^2.  r must be zero
+ * before j0; columns before j0 of dst and idst are not written.  Every
+ * variant returns the same bits. */
+typedef double (*qw_sweep_fn)(const double *restrict src,
+			      const double *restrict isrc,
+			      double *restrict dst, double *restrict idst,
+			      size_t p, double *restrict u,
+			      double *restrict ys, double a, double c,
+			      size_t j0);
+double qw_sweep(const double *restrict src, const double *restrict isrc,
+		double *restrict dst, double *restrict idst, size_t p,
+		double *restrict u, double *restrict ys, double a, double c,
+		size_t j0);
+
+enum qw_sweep_kind {
+	QW_SWEEP_PORTABLE = 0, /* baseline x86-64 (SSE2), or plain C */
+	QW_SWEEP_AVX2 = 1,     /* x86-64-v3 */
+	QW_SWEEP_AVX512 = 2    /* x86-64-v4 */
+};
+
+/* The variant kind, NULL when this CPU (or build) cannot run it; for tests
+ * that compare the variants.  qw_sweep is the widest one the CPU runs. */
+qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind);
+
 #endif

@@ -413,6 +413,17 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	       size_t n, const struct qw_fit_opts *o, struct qw_fit_result *res,
 	       qw_detector **model);
 
+/* ---- batch.c: a frame of readings ---------------------------------------- */
+
+/* Readings k = 0..n-1 (time t[k], channels x + k*p) through
+ * qw_detector_add in order, with identical results; stops after the first
+ * reading that raises or clears an alarm, so its res (and res->contrib) is
+ * valid on return.  res[k] and, when rc is not NULL, rc[k] (the reading's
+ * return code) are filled for the readings taken.  Returns how many were
+ * taken: n, or fewer when an event stopped the call (0 only for n = 0). */
+size_t qw_detector_add_batch(qw_detector *d, size_t n, const double *t,
+			     const double *x, struct qw_result *res, int *rc);
+
 /* ---- explain.c --------------------------------------------------------- */
 
 /* Attribution of r = x - mu against the factor L (packed by columns, p x p)

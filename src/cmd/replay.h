@@ -46,6 +46,10 @@ extern const char *const qw_replay_cause_names[RP_NCAUSES];
 #define RP_TRACE_PRE 120      /* readings drawn before a raise */
 #define RP_TRACE_POST 120     /* readings drawn from the raise on */
 #define RP_TRACE_LEN (RP_TRACE_PRE + RP_TRACE_POST)
+#define RP_SCORE_DIGITS 10    /* significant digits of score and limit in
+				 --scores (%.10g) */
+#define RP_PVALUE_DIGITS 6    /* of the p-value (%.6g) */
+#define RP_SCORES_BUF (1u << 20) /* bytes of stdio buffer for --scores */
 #define RP_PROGRESS_EVERY 1.0 /* s between progress lines */
 #define RP_PROGRESS_CHECK 4096 /* readings between clock reads */
 

@@ -16,6 +16,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fmt.h"
 #include "log.h"
 #include "replay.h"
 #include "verdict.h"
@@ -27,6 +28,7 @@ int qw_replay_scores_open(struct replay *rp)
 		qw_log_errno(QW_LOG_ERROR, "--scores %s", rp->o.scores);
 		return 1;
 	}
+	setvbuf(rp->scores, NULL, _IOFBF, RP_SCORES_BUF);
 	fputs("time,group,score,limit,pvalue,alarm,top\n", rp->scores);
 	return 0;
 }
@@ -83,15 +85,33 @@ static void rp_point(struct replay_group *g, double t,
 	pt->warm = (unsigned char)(warm != 0);
 }
 
+/* One --scores row, "%.6f,%s,%.10g,%.10g,%.6g,%d,%s\n" as printf would
+ * write it, built with fmt.h (the same bytes, a tenth of the time). */
 static void rp_scores_row(struct replay *rp, const struct replay_group *g,
 			  double t, const struct qw_result *res, double pv)
 {
 	const char *top = res->over && res->ncontrib > 0
 			  ? g->conf->channels[res->contrib[0].channel] : "";
+	char row[4 * QW_FMT_MAX + 2 * QW_CONFIG_NAME_MAX + 8];
+	size_t n, ln = strlen(g->conf->name), lt = strlen(top);
 
-	fprintf(rp->scores, "%.6f,%s,%.10g,%.10g,%.6g,%d,%s\n", t,
-		g->conf->name, res->q, res->limit, pv, res->in_alarm != 0,
-		top);
+	n = qw_fmt_f6(row, t);
+	row[n++] = ',';
+	memcpy(row + n, g->conf->name, ln);
+	n += ln;
+	row[n++] = ',';
+	n += qw_fmt_g(row + n, res->q, RP_SCORE_DIGITS);
+	row[n++] = ',';
+	n += qw_fmt_g(row + n, res->limit, RP_SCORE_DIGITS);
+	row[n++] = ',';
+	n += qw_fmt_g(row + n, pv, RP_PVALUE_DIGITS);
+	row[n++] = ',';
+	row[n++] = res->in_alarm != 0 ? '1' : '0';
+	row[n++] = ',';
+	memcpy(row + n, top, lt);
+	n += lt;
+	row[n++] = '\n';
+	fwrite(row, 1, n, rp->scores);
 }
 
 /* Report traces: a raise opens the slot of the lowest-scoring alarm kept

@@ -8,7 +8,7 @@
  * P <= 12 (m < 2^40) that half ulp is below 2^-13.  The nearest integer is then certain
  * unless m's fraction lies within FMT_TIE_TOL of one half; those values
  * (exact ties among them), and every value whose k is out of the table,
- * zero, Inf and NaN, go to snprintf.  %.6f splits |v| into its integer
+ * zero, subnormals, Inf and NaN, go to snprintf.  %.6f splits |v| into its integer
  * part and its fraction (both exact below 2^52) and rounds fraction *
  * 10^6 the same way.  The digits are then laid out by C's %g rule: style
  * f when -4 <= X < P (X the decimal exponent after rounding), else style
@@ -20,6 +20,7 @@
  * took ~400 ns. */
 #include "fmt.h"
 
+#include <float.h>
 #include <math.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -32,7 +33,13 @@
 #define FMT_F_DIGITS 6         /* decimals of qw_fmt_f6 */
 #define FMT_F_SCALE 1e6        /* 10^FMT_F_DIGITS */
 #define FMT_F_INT_MAX 4.5e15   /* |v| below 2^52: floor and fraction exact */
-#define FMT_LOG10_2 0.30102999566398120 /* log10(2), to guess exponents */
+#define FMT_MANT_BITS 52       /* binary64: stored significand bits */
+#define FMT_EXP_BIAS 1023      /* binary64: exponent bias */
+/* floor(e log10 2) = (e * 78913) >> 18 for |e| <= 1650 (78913 / 2^18 =
+ * 0.3010292 from below; the identity of Ryu's log10Pow2, Adams 2018;
+ * a guess one too high only sends the value to snprintf) */
+#define FMT_LOG10_2_NUM 78913
+#define FMT_LOG10_2_SHIFT 18
 
 static const double fmt_pow10[FMT_POW_MAX + 1] = {
 	1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11,
@@ -49,7 +56,7 @@ static double fmt_scale(double a, int k)
  * be sure of it. */
 static int fmt_round(double m, uint64_t *r)
 {
-	double fl = floor(m), fr = m - fl; /* exact: m < 2^53 */
+	double fl = (double)(uint64_t)m, fr = m - fl; /* exact: m < 2^53 */
 
 	if (fabs(fr - 0.5) < FMT_TIE_TOL)
 		return 0;
@@ -130,14 +137,16 @@ size_t qw_fmt_g(char *buf, double v, int prec)
 {
 	double a = fabs(v), m, lo, hi;
 	char d[QW_FMT_G_PREC_MAX + 1];
-	uint64_t r;
+	uint64_t r, bits;
 	int e2, x, k;
 	size_t o = 0;
 
-	if (!(a > 0) || !isfinite(a) || prec < 1 || prec > QW_FMT_G_PREC_MAX)
+	if (!(a >= DBL_MIN) || !isfinite(a) || prec < 1 || prec > QW_FMT_G_PREC_MAX)
 		return fmt_slow_g(buf, prec, v);
-	(void)frexp(a, &e2);
-	x = (int)floor((e2 - 1) * FMT_LOG10_2); /* 10^x <= a, or one above */
+	memcpy(&bits, &a, sizeof bits);
+	e2 = (int)(bits >> FMT_MANT_BITS) - FMT_EXP_BIAS; /* 2^e2 <= a */
+	/* floor(e2 log10 2): 10^x <= a, or 10^(x+1) <= a */
+	x = (e2 * FMT_LOG10_2_NUM) >> FMT_LOG10_2_SHIFT;
 	lo = fmt_pow10[prec - 1];
 	hi = fmt_pow10[prec];
 	k = prec - 1 - x;

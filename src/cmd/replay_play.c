@@ -13,6 +13,7 @@
  * GSL F tail, ~1 us); the point array grows by doubling (amortised O(1),
  * log2(n) reallocations in a whole replay). */
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -51,6 +52,8 @@ static void rp_event(struct replay *rp, struct replay_group *g, double t,
 	obj = len > 0 ? json_loadb(rp->alert_buf, len, 0, NULL) : NULL;
 	if (obj == NULL || json_array_append_new(rp->events, obj) != 0)
 		rp->events_dropped++;
+	else if (rp->ev_keys != NULL)
+		rp->ev_keys[json_array_size(rp->events) - 1] = rp->key;
 }
 
 static void rp_point(struct replay_group *g, double t,
@@ -92,7 +95,7 @@ static void rp_scores_row(struct replay *rp, const struct replay_group *g,
 {
 	const char *top = res->over && res->ncontrib > 0
 			  ? g->conf->channels[res->contrib[0].channel] : "";
-	char row[4 * QW_FMT_MAX + 2 * QW_CONFIG_NAME_MAX + 8];
+	char row[RP_SCORES_ROW_MAX];
 	size_t n, ln = strlen(g->conf->name), lt = strlen(top);
 
 	n = qw_fmt_f6(row, t);
@@ -111,7 +114,10 @@ static void rp_scores_row(struct replay *rp, const struct replay_group *g,
 	memcpy(row + n, top, lt);
 	n += lt;
 	row[n++] = '\n';
-	fwrite(row, 1, n, rp->scores);
+	if (rp->jobs != NULL)
+		qw_replay_jobs_row(rp, row, n);
+	else
+		fwrite(row, 1, n, rp->scores);
 }
 
 /* Report traces: a raise opens the slot of the lowest-scoring alarm kept
@@ -212,11 +218,33 @@ void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 		rp_trace_feed(g, t, x, &res);
 }
 
+/* Seconds as "1h02m", "3m05s" or "42s" into buf. */
+static void rp_duration(char *buf, size_t cap, double s)
+{
+	unsigned long t = (unsigned long)(s + 0.5);
+
+	if (t >= 3600)
+		snprintf(buf, cap, "%luh%02lum", t / 3600, t / 60 % 60);
+	else if (t >= 60)
+		snprintf(buf, cap, "%lum%02lus", t / 60, t % 60);
+	else
+		snprintf(buf, cap, "%lus", t);
+}
+
+/* The progress line on a terminal (stderr), at most every
+ * RP_PROGRESS_EVERY s: the input, its share read, readings played in
+ * all, their rate, and the time left from the bytes still to read (the
+ * sizes of all inputs, known at the start; none from a pipe).  With -j
+ * the first worker writes it for all. */
 void qw_replay_progress(struct replay *rp, int last)
 {
-	double now, secs;
+	double now, secs, rate;
+	uint64_t readings, done;
+	char left[32];
 
-	if (!rp->progress)
+	if (rp->jobs != NULL)
+		qw_replay_jobs_publish(rp);
+	if (!rp->progress || rp->wid != 0)
 		return;
 	if (last) {
 		if (rp->progress_shown)
@@ -229,13 +257,21 @@ void qw_replay_progress(struct replay *rp, int last)
 		return;
 	rp->next_progress = now + RP_PROGRESS_EVERY;
 	secs = now - rp->started;
+	readings = rp->jobs != NULL ? qw_replay_jobs_readings(rp)
+		   : rp->readings;
+	rate = secs > 0 ? (double)readings / secs : 0.0;
 	fprintf(stderr, "\r\033[Kreplay: %s", rp->cur_name);
 	if (rp->cur_total > 0)
 		fprintf(stderr, " %3.0f%%",
 			100.0 * (double)rp->cur_done / (double)rp->cur_total);
-	fprintf(stderr, ", %llu readings, %.0f readings/s",
-		(unsigned long long)rp->readings,
-		secs > 0 ? (double)rp->readings / secs : 0.0);
+	fprintf(stderr, ", %llu readings, %.3g M readings/s",
+		(unsigned long long)readings, rate / 1e6);
+	done = rp->bytes_before + rp->cur_done;
+	if (rp->bytes_total > done && done > 0 && secs > 0) {
+		rp_duration(left, sizeof left, (double)(rp->bytes_total - done)
+			    * secs / (double)done);
+		fprintf(stderr, ", %s left", left);
+	}
 	rp->progress_shown = 1;
 }
 

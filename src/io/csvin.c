@@ -276,8 +276,9 @@ static void csvin_line(struct qw_csvin *c, const unsigned char *s, size_t k)
 	for (;;) {
 		for (a = p; a < end && (*a == ' ' || *a == '\t'); a++)
 			;
-		for (b = a; b < end && *b != ','; b++)
-			;
+		b = a < end ? memchr(a, ',', (size_t)(end - a)) : NULL;
+		if (b == NULL)
+			b = end;
 		p = b;
 		while (b > a && (b[-1] == ' ' || b[-1] == '\t'))
 			b--;
@@ -292,12 +293,18 @@ static void csvin_line(struct qw_csvin *c, const unsigned char *s, size_t k)
 /* Feeds chunk[pos..] up to and including the next CR or LF. */
 static void csvin_feed(struct qw_csvin *c)
 {
-	const unsigned char *s = c->chunk + c->pos;
+	const unsigned char *s = c->chunk + c->pos, *e;
 	size_t k, n = c->len - c->pos;
-	int quote = 0;
+	int quote;
 
-	for (k = 0; k < n && s[k] != '\n' && s[k] != '\r'; k++)
-		quote |= s[k] == '"';
+	/* the slice ends at the first LF or CR (memchr: the library's
+	 * word-at-a-time scan, the bytes are many) */
+	e = memchr(s, '\n', n);
+	k = e != NULL ? (size_t)(e - s) : n;
+	e = memchr(s, '\r', k);
+	if (e != NULL)
+		k = (size_t)(e - s);
+	quote = memchr(s, '"', k) != NULL;
 	if (k < n)
 		k++; /* the terminator ends this slice */
 	if (c->csv.pstate == CSVIN_LIBCSV_ROW_NOT_BEGUN)

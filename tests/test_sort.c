@@ -4,7 +4,8 @@
  * sort.h promises) on the same data, compared bit for bit: random values
  * over the whole range, with negatives, zeros of both signs, subnormals,
  * infinities and many duplicates; p-values in [0, 1] (one shared exponent
- * range, where passes are skipped); and sizes 0, 1, 2. */
+ * range, where passes are skipped); and sizes 0, 1, 2.  Selection against
+ * the sorted array, and its quantile against GSL's from sorted data. */
 #include <stdarg.h>
 #include <stddef.h>
 #include <setjmp.h>
@@ -16,6 +17,7 @@
 #include <string.h>
 
 #include <gsl/gsl_rng.h>
+#include <gsl/gsl_statistics_double.h>
 
 #include "sort.h"
 
@@ -106,6 +108,53 @@ static void test_sort_pvalues(void **state)
 	gsl_rng_free(r);
 }
 
+/* Selection gives the sorted array's value at every rank tried, and the
+ * quantile gsl_stats_quantile_from_sorted_data gives, bit for bit. */
+static void test_select_and_quantile(void **state)
+{
+	static const double probs[] = {0.0, 1e-6, 0.01, 0.5, 0.9, 0.99,
+				       1.0 - 1e-6, 1.0};
+	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+	size_t ns[] = {1, 2, 3, 10, 1000, SORT_N};
+	size_t a, i, k;
+
+	(void)state;
+	gsl_rng_set(r, SORT_SEED + 2);
+	for (a = 0; a < sizeof ns / sizeof ns[0]; a++) {
+		size_t n = ns[a];
+		double *v = malloc(n * sizeof *v), *s = malloc(n * sizeof *s);
+		double *w = malloc(n * sizeof *w);
+
+		assert_true(v && s && w);
+		for (i = 0; i < n; i++)
+			v[i] = i % 3 ? -log(gsl_rng_uniform_pos(r)) * 16.0
+			       : (double)gsl_rng_uniform_int(r, 20); /* dups */
+		memcpy(s, v, n * sizeof *v);
+		qsort(s, n, sizeof *s, cmp_total);
+		for (k = 0; k < n; k += 1 + n / 7) {
+			memcpy(w, v, n * sizeof *v);
+			assert_true(qw_select_double(w, n, k) == s[k]);
+			for (i = 0; i < n; i++)
+				assert_true(i <= k ? w[i] <= s[k] : w[i] >= s[k]);
+		}
+		for (k = 0; k < sizeof probs / sizeof probs[0]; k++) {
+			double want = gsl_stats_quantile_from_sorted_data(
+				s, 1, n, probs[k]), got;
+
+			memcpy(w, v, n * sizeof *v);
+			got = qw_quantile_select(w, n, probs[k]);
+			if (memcmp(&got, &want, sizeof got) != 0)
+				fail_msg("n %zu prob %g: %a, gsl %a", n,
+					 probs[k], got, want);
+		}
+		free(v);
+		free(s);
+		free(w);
+	}
+	assert_true(isnan(qw_quantile_select(NULL, 0, 0.5)));
+	gsl_rng_free(r);
+}
+
 /* The checker can fail: an array left unsorted differs from qsort's. */
 static void test_sort_broken(void **state)
 {
@@ -122,6 +171,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(test_sort_any),
 		cmocka_unit_test(test_sort_pvalues),
+		cmocka_unit_test(test_select_and_quantile),
 		cmocka_unit_test(test_sort_broken),
 	};
 

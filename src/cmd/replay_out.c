@@ -15,8 +15,8 @@
  * reading; the lag-1 autocorrelation of the eligible scores in stream
  * order; with persist k > 1 the warnings of qw_summary_warn.
  *
- * Workload: once per replay; two radix sorts (sort.h) of at most the
- * scored readings. */
+ * Workload: once per replay; one selection and one radix sort (sort.h)
+ * of at most the scored readings. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -128,12 +128,12 @@ static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
 		if (pt->pvalue >= 0.0 && pt->pvalue <= 1.0)
 			pv[np++] = pt->pvalue;
 	}
-	/* the radix sort, then the quantiles of the sorted data: the same
-	 * figures as qw_summary_quantile's comparison sort, in O(n) */
-	qw_sort_double(qf, tmp, nq);
+	/* the same figures as qw_summary_quantile's comparison sort, in
+	 * O(n): the score quantile by selection, the p-values by a radix
+	 * sort (the KS distance needs them all in order) */
 	qw_sort_double(pv, tmp, np);
 	st->tune_n = nq;
-	st->tune_limit = qw_summary_quantile_sorted(qf, nq, 1.0 - st->alpha);
+	st->tune_limit = qw_quantile_select(qf, nq, 1.0 - st->alpha);
 	st->tune_alpha = qw_summary_quantile_sorted(pv, np, st->alpha);
 	st->tune_apd = g->conf->params.alarms_per_day * st->tune_alpha
 		       / st->alpha;

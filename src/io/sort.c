@@ -15,6 +15,7 @@
  * memcpy so the aliasing rules hold. */
 #include "sort.h"
 
+#include <math.h>
 #include <stdint.h>
 #include <string.h>
 
@@ -94,4 +95,75 @@ void qw_sort_double(double *v, double *tmp, size_t n)
 	}
 	for (i = 0; i < n; i++)
 		v[i] = sort_unkey(sort_get(a, i));
+}
+
+static void sort_swap(double *v, size_t i, size_t j)
+{
+	double t = v[i];
+
+	v[i] = v[j];
+	v[j] = t;
+}
+
+double qw_select_double(double *v, size_t n, size_t k)
+{
+	size_t lo = 0, hi = n - 1;
+
+	while (hi > lo) {
+		size_t mid = lo + (hi - lo) / 2, i = lo, j = hi;
+		double pivot;
+
+		/* median of three into v[mid] */
+		if (v[mid] < v[lo])
+			sort_swap(v, mid, lo);
+		if (v[hi] < v[lo])
+			sort_swap(v, hi, lo);
+		if (v[hi] < v[mid])
+			sort_swap(v, hi, mid);
+		pivot = v[mid];
+		/* Hoare partition: v[lo..j] <= pivot <= v[i..hi] */
+		while (i <= j) {
+			while (v[i] < pivot)
+				i++;
+			while (pivot < v[j])
+				j--;
+			if (i <= j) {
+				sort_swap(v, i, j);
+				i++;
+				if (j == 0)
+					break;
+				j--;
+			}
+		}
+		if (k <= j)
+			hi = j;
+		else if (k >= i)
+			lo = i;
+		else
+			return v[k]; /* between the parts: equal to the pivot */
+	}
+	return v[k];
+}
+
+double qw_quantile_select(double *v, size_t n, double prob)
+{
+	/* gsl_stats_quantile_from_sorted_data: index = prob (n - 1),
+	 * lhs = floor(index), delta = index - lhs; the result is v[lhs] at
+	 * lhs = n - 1, else (1 - delta) v[lhs] + delta v[lhs + 1] */
+	double index, delta, a, b;
+	size_t lhs, i;
+
+	if (n == 0)
+		return NAN;
+	index = prob * (double)(n - 1);
+	lhs = (size_t)index;
+	delta = index - (double)lhs;
+	a = qw_select_double(v, n, lhs);
+	if (lhs == n - 1)
+		return a;
+	b = v[lhs + 1];
+	for (i = lhs + 2; i < n; i++)
+		if (v[i] < b)
+			b = v[i];
+	return (1 - delta) * a + delta * b;
 }

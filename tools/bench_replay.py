@@ -33,6 +33,9 @@ BATCH = 64
 T0 = 1.7e9   # s: epoch start of the synthetic recording
 DT = 0.1     # s: 10 readings/s
 MARK_WARM = 30  # readings that warm a marker group up
+GROUP_HALF_LIFE = 200  # readings: short, so learning ends within the
+                       # warm phase and the rounds measure steady state
+WARM_PER_GROUP = 2048  # readings each group learns before the rounds
 
 
 def channels(p):
@@ -136,9 +139,10 @@ def groups_ini(tmp, pub, names, p, rounds):
     daemon has played every reading sent before it: one publisher, one
     connection, so messages arrive in order."""
     import qwtest as q
-    g = {nm: {"channels": channel_list(p), "half_life": 2000, "rate": 10,
-              "alarms_per_day": 1, "warmup": 500} for nm in names}
-    for r in range(rounds):
+    g = {nm: {"channels": channel_list(p), "half_life": GROUP_HALF_LIFE,
+              "rate": 10, "alarms_per_day": 1, "warmup": 100}
+         for nm in names}
+    for r in range(rounds + 1):
         g["mark%d" % r] = {"channels": "m0, m1", "half_life": 50,
                            "warmup": MARK_WARM, "rate": 10,
                            "alarms_per_day": 1}
@@ -167,27 +171,33 @@ def daemon_run(tmp, ng, p, per_round, rounds):
     # one subscription message per group: more than the default HWM
     pub.sock.setsockopt(q.zmq.RCVHWM, 0)
     d = q.Daemon(sub, groups_ini(sub, pub, names, p, rounds))
-    wait_all_subs(pub, ng + rounds)
+    wait_all_subs(pub, ng + rounds + 1)
     alerts = q.AlertSub(d.alerts, stats=False)
     time.sleep(0.3)  # the alert subscription reaches the daemon
     mt, mx = readings(MARK_WARM * 2, 2, 31)
-    for r in range(rounds):
+    for r in range(rounds + 1):
         pub.send("mark%d" % r, binary_frame(2, mt, mx, 0))
     t, x = readings(BATCH * 16, p, 7919)
     frames = [binary_frame(p, t[i:i + BATCH], x[i:i + BATCH], i)
               for i in range(0, len(t), BATCH)]
     nmsg = max(1, per_round // BATCH)
     out = binary_frame(2, mt[-1:] + 1.0, mx[-1:] + 1e6, 0)
-    rates, rss = [], [d.rss_kib()]
-    for r in range(rounds):
+    def play(nmsg, mark):
         t0 = time.monotonic()
         for k in range(nmsg):
             pub.send(names[k % ng], frames[(k // ng) % len(frames)])
-        pub.send("mark%d" % r, out)
-        if not alerts.sock.poll(300000):
+        pub.send(mark, out)
+        if not alerts.sock.poll(600000):
             sys.exit("no marker alert from the daemon")
-        topic, _ = alerts.sock.recv_multipart()
-        rates.append(nmsg * BATCH / (time.monotonic() - t0))
+        alerts.sock.recv_multipart()
+        return nmsg * BATCH / (time.monotonic() - t0)
+
+    # learning: the first readings of a group recompute its limit as the
+    # effective size grows (the core's cost, not the daemon's)
+    rates = [play(ng * WARM_PER_GROUP // BATCH, "mark%d" % rounds)]
+    rss = [d.rss_kib()]
+    for r in range(rounds):
+        rates.append(play(nmsg, "mark%d" % r))
         rss.append(d.rss_kib())
     d.stop()
     pub.close()
@@ -195,29 +205,69 @@ def daemon_run(tmp, ng, p, per_round, rounds):
 
 
 def bench_groups(tmp, ngroups, per_round, rounds):
-    print("== daemon: groups of p = %d, %d readings a round in binary "
-          "batches of %d spread round-robin over all groups, %d rounds, "
-          "load %s" % (P, per_round, BATCH, rounds, load()))
-    print("%-8s %14s %12s %12s %14s" % ("groups", "readings/s", "RSS kB",
-                                         "RSS kB end", "kB per group"))
+    print("== daemon: groups of p = %d (half_life %d), first %d readings "
+          "per group to learn, then %d rounds of %d readings in binary "
+          "batches of %d spread round-robin over all groups; load %s"
+          % (P, GROUP_HALF_LIFE, WARM_PER_GROUP, rounds, per_round, BATCH,
+             load()))
+    print("%-7s %13s %13s %10s %12s %12s" % (
+        "groups", "learning r/s", "steady r/s", "RSS kB", "RSS kB end",
+        "kB/group"))
     base = None
     for ng in (1, ngroups):
         rates, rss = daemon_run(tmp, ng, P, per_round, rounds)
-        per = (rss[1] - base) / (ng - 1) if base is not None else \
+        per = (rss[0] - base) / (ng - 1) if base is not None else \
             float("nan")
-        print("%-8d %14.0f %12d %12d %14.1f" % (
-            ng, statistics.median(rates), rss[1], rss[-1], per))
-        print("         RSS after each round (kB): %s" %
-              " ".join(str(r) for r in rss[1:]))
+        print("%-7d %13.0f %13.0f %10d %12d %12.1f" % (
+            ng, rates[0], statistics.median(rates[1:]), rss[0], rss[-1],
+            per))
+        print("        RSS after learning and after each round (kB; "
+              "with the message queues' high water): %s"
+              % " ".join(str(r) for r in rss))
         if base is None:
-            base = rss[1]
-    # memory per group at the largest channel count in common use
-    for p in (16, 128):
-        n = 200
-        _, r1 = daemon_run(tmp, 1, p, BATCH * 4, 1)
-        _, rn = daemon_run(tmp, n, p, n * BATCH, 1)
-        print("memory per group at p = %d: %.1f kB (RSS of %d groups minus "
-              "1, over %d)" % (p, (rn[-1] - r1[-1]) / (n - 1), n, n - 1))
+            base = rss[0]
+    for p, n in ((16, ngroups), (128, 200)):
+        one_kb, _ = mem_run(tmp, 1, p)
+        n_kb, state = mem_run(tmp, n, p)
+        print("memory per group at p = %d: %.1f kB resident (%d groups "
+              "minus 1, over %d, each having learned %d readings, no "
+              "messages queued); state %d bytes (checkpoint file)"
+              % (p, (n_kb - one_kb) / (n - 1), n, n - 1, BATCH, state))
+
+
+def mem_run(tmp, ng, p):
+    """Resident kB of a daemon with ng groups of p, each sent one batch,
+    paced so that no messages queue; and the mean checkpoint size."""
+    import glob
+    import qwtest as q
+    names = ["g%04d" % i for i in range(ng)]
+    sub = os.path.join(tmp, "m%d_%d" % (ng, p))
+    state = os.path.join(sub, "state")
+    os.makedirs(state, exist_ok=True)
+    pub = q.Publisher()
+    pub.sock.setsockopt(q.zmq.RCVHWM, 0)
+    cfg = groups_ini(sub, pub, names, p, 0) + \
+        "\n[state]\ndir = %s\nevery = 1h\n" % state
+    d = q.Daemon(sub, cfg)
+    wait_all_subs(pub, ng + 1)
+    t, x = readings(BATCH, p, 4099)
+    frame = binary_frame(p, t, x, 0)
+    for k, nm in enumerate(names):
+        pub.send(nm, frame)
+        if k % 50 == 49:
+            time.sleep(0.005)
+    end = time.monotonic() + 120
+    while d.status()["readings"] < ng * BATCH and time.monotonic() < end:
+        time.sleep(0.2)
+    kb = d.rss_kib()
+    d.ctl("save", timeout=120)  # one fsync per group
+    files = [f for f in glob.glob(os.path.join(state, "*"))
+             if os.path.isfile(f)]
+    size = statistics.mean(os.path.getsize(f) for f in files) if files \
+        else 0
+    d.stop()
+    pub.close()
+    return kb, size
 
 
 def main():

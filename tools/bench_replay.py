@@ -261,8 +261,8 @@ def mem_run(tmp, ng, p):
         time.sleep(0.2)
     kb = d.rss_kib()
     d.ctl("save", timeout=120)  # one fsync per group
-    files = [f for f in glob.glob(os.path.join(state, "*"))
-             if os.path.isfile(f)]
+    files = [f for f in glob.glob(os.path.join(state, "g*"))
+             if os.path.isfile(f)]  # not the marker group's
     size = statistics.mean(os.path.getsize(f) for f in files) if files \
         else 0
     d.stop()

@@ -8,8 +8,9 @@ only one group uses; then a capture holding three groups interleaved
 channel count; and a second CSV feeding a third group.  Replayed as one
 stream serially and with -j2 and -j3, the --scores file, the --json
 summary (with events and labels), the human summary and the --report page
-must be identical; and a file that fails must fail alike, with one
-message.  A deliberately different run (one reading fewer) must differ,
+must be identical; so must they with one group (--group: the second
+thread takes its p-values and rows); and a file that fails must fail
+alike, with one message.  A deliberately different run (one reading fewer) must differ,
 so the comparison can fail."""
 import os
 import struct
@@ -121,6 +122,16 @@ for jobs in (2, 3):
         q.check(par[k] == ser[k], "-j%d differs from the serial run in %s"
                 % (jobs, k))
     q.note("-j%d: scores, JSON, human summary and report identical" % jobs)
+
+# one group (--group): -j2 plays it on one thread and takes its p-values
+# and rows on a second; the same bytes again
+one = replay(1, [cap, more], extra=("--group", "skid"), tag="one1")
+q.check(one["json"][0] == 0 and one["json_scores"].count("\n") > 8000,
+        "one group: %r" % (one["json"][2],))
+par = replay(2, [cap, more], extra=("--group", "skid"), tag="one2")
+for k in one:
+    q.check(par[k] == one[k], "one group: -j2 differs in %s" % k)
+q.note("one group, -j2: scores, JSON, human summary and report identical")
 
 # the checker can fail: one reading fewer must change the scores
 with open(more) as f:

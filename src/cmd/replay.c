@@ -247,6 +247,16 @@ static int rp_outputs(struct replay *rp)
 	return rc;
 }
 
+/* Groups that --group (or its absence) selects. */
+static size_t rp_wanted(const struct replay *rp)
+{
+	size_t i, n = 0;
+
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		n += rp->groups[i].wanted != 0;
+	return n;
+}
+
 /* Bytes of all inputs that are regular files, for the time left. */
 static uint64_t rp_input_bytes(const struct replay_opts *o)
 {
@@ -264,7 +274,7 @@ static uint64_t rp_input_bytes(const struct replay_opts *o)
 int qw_cmd_replay(int argc, char **argv)
 {
 	struct replay rp;
-	int i, rc;
+	int i, rc, share;
 
 	memset(&rp, 0, sizeof rp);
 	rc = rp_args(argc, argv, &rp.o);
@@ -281,12 +291,18 @@ int qw_cmd_replay(int argc, char **argv)
 	if (rc == 0 && rp.o.scores != NULL)
 		rc = qw_replay_scores_open(&rp);
 	rp.bytes_total = rp_input_bytes(&rp.o);
-	if (rc == 0 && rp.o.jobs > 1)
+	/* -j: several groups are shared out; one group gets a second
+	 * thread for its p-values and rows */
+	share = rc == 0 && rp.o.jobs > 1 && rp_wanted(&rp) > 1;
+	if (share)
 		rc = qw_replay_jobs(&rp);
-	for (i = 0; rc == 0 && rp.o.jobs == 1 && i < rp.o.ninputs; i++) {
+	else if (rc == 0 && rp.o.jobs > 1 && qw_replay_tail_start(&rp) != 0)
+		rc = QW_EXIT_FAIL;
+	for (i = 0; rc == 0 && !share && i < rp.o.ninputs; i++) {
 		rp.input = (unsigned)i;
 		rc = qw_replay_input(&rp, rp.o.inputs[i]);
 	}
+	qw_replay_tail_finish(&rp);
 	if (rc == 0) {
 		qw_replay_progress(&rp, 1);
 		qw_replay_finish(&rp);

@@ -8,6 +8,8 @@
  *   replay_report.c  the --report HTML page (replay_svg.c draws the plots)
  *   replay_jobs.c    -j N: groups shared out over N threads, results merged
  *                    into the serial run's order
+ *   replay_tail.c    -j N with one group: p-values and --scores rows on a
+ *                    second thread
  * Private to src/cmd/replay*.c. */
 #ifndef QW_REPLAY_H
 #define QW_REPLAY_H
@@ -141,6 +143,18 @@ struct replay_key {
 #define RP_KEY_INPUT_SHIFT 40 /* rows or records per input < 2^40 */
 
 struct replay_jobs;
+struct replay_tail;
+
+/* A scored reading on its way to the p-value, the kept point and the
+ * --scores row (replay_play.c; replay_tail.c may do that part). */
+struct replay_scored {
+	struct replay_group *g;
+	double t, q, limit;      /* s, score, limit in force */
+	double nu, scale;        /* of the result, for the p-value */
+	unsigned dof;
+	unsigned char over, in_alarm, warm;
+	const char *top;         /* channel name, or "" */
+};
 
 struct replay {
 	struct replay_opts o;
@@ -159,6 +173,8 @@ struct replay {
 	/* -j: the worker this is (0 in a serial run) and its bookkeeping */
 	unsigned wid;
 	struct replay_jobs *jobs;    /* NULL in a serial run */
+	struct replay_tail *tail;    /* -j with one group: the thread that
+					takes the p-values and rows */
 	struct replay_map *map;      /* cfg.ngroups */
 	size_t *scratch_idx;         /* column indices of groups not ours */
 	unsigned input;              /* index of the input being played */
@@ -205,8 +221,18 @@ uint64_t qw_replay_jobs_readings(const struct replay *rp);
 void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 		       const double *x, int label);
 int qw_replay_scores_open(struct replay *rp);
+/* The p-value, the point and the --scores row of one scored reading. */
+void qw_replay_scored(struct replay *rp, const struct replay_scored *r);
 void qw_replay_progress(struct replay *rp, int last);
 void qw_replay_finish(struct replay *rp);
+
+/* replay_tail.c: with -j N (N > 1) and one group to play, the p-values,
+ * points and --scores rows are done by a second thread, in order.
+ * _start: 0 or QW_ENOMEM; _put hands one scored reading over; _finish
+ * waits until all are done and frees the tail (NULL: no-op). */
+int qw_replay_tail_start(struct replay *rp);
+void qw_replay_tail_put(struct replay_tail *tl, const struct replay_scored *r);
+void qw_replay_tail_finish(struct replay *rp);
 
 /* replay_out.c */
 /* Per-group figures of the summary, computed once at the end. */

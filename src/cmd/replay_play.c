@@ -56,8 +56,8 @@ static void rp_event(struct replay *rp, struct replay_group *g, double t,
 		rp->ev_keys[json_array_size(rp->events) - 1] = rp->key;
 }
 
-static void rp_point(struct replay_group *g, double t,
-		     const struct qw_result *res, double pv, int warm)
+static void rp_point(struct replay_group *g, const struct replay_scored *r,
+		     double pv)
 {
 	struct replay_point *pt;
 
@@ -78,46 +78,54 @@ static void rp_point(struct replay_group *g, double t,
 	if (g->pts_full)
 		return;
 	pt = &g->pts[g->npts++];
-	pt->t = t;
-	pt->q = res->q;
-	pt->limit = res->limit;
+	pt->t = r->t;
+	pt->q = r->q;
+	pt->limit = r->limit;
 	pt->pvalue = pv;
-	pt->dof = res->dof;
-	pt->over = (unsigned char)(res->over != 0);
-	pt->in_alarm = (unsigned char)(res->in_alarm != 0);
-	pt->warm = (unsigned char)(warm != 0);
+	pt->dof = r->dof;
+	pt->over = r->over;
+	pt->in_alarm = r->in_alarm;
+	pt->warm = r->warm;
 }
 
 /* One --scores row, "%.6f,%s,%.10g,%.10g,%.6g,%d,%s\n" as printf would
  * write it, built with fmt.h (the same bytes, a tenth of the time). */
-static void rp_scores_row(struct replay *rp, const struct replay_group *g,
-			  double t, const struct qw_result *res, double pv)
+static void rp_scores_row(struct replay *rp, const struct replay_scored *r,
+			  double pv)
 {
-	const char *top = res->over && res->ncontrib > 0
-			  ? g->conf->channels[res->contrib[0].channel] : "";
+	const char *name = r->g->conf->name;
 	char row[RP_SCORES_ROW_MAX];
-	size_t n, ln = strlen(g->conf->name), lt = strlen(top);
+	size_t n, ln = strlen(name), lt = strlen(r->top);
 
-	n = qw_fmt_f6(row, t);
+	n = qw_fmt_f6(row, r->t);
 	row[n++] = ',';
-	memcpy(row + n, g->conf->name, ln);
+	memcpy(row + n, name, ln);
 	n += ln;
 	row[n++] = ',';
-	n += qw_fmt_g(row + n, res->q, RP_SCORE_DIGITS);
+	n += qw_fmt_g(row + n, r->q, RP_SCORE_DIGITS);
 	row[n++] = ',';
-	n += qw_fmt_g(row + n, res->limit, RP_SCORE_DIGITS);
+	n += qw_fmt_g(row + n, r->limit, RP_SCORE_DIGITS);
 	row[n++] = ',';
 	n += qw_fmt_g(row + n, pv, RP_PVALUE_DIGITS);
 	row[n++] = ',';
-	row[n++] = res->in_alarm != 0 ? '1' : '0';
+	row[n++] = r->in_alarm ? '1' : '0';
 	row[n++] = ',';
-	memcpy(row + n, top, lt);
+	memcpy(row + n, r->top, lt);
 	n += lt;
 	row[n++] = '\n';
 	if (rp->jobs != NULL)
 		qw_replay_jobs_row(rp, row, n);
 	else
 		fwrite(row, 1, n, rp->scores);
+}
+
+void qw_replay_scored(struct replay *rp, const struct replay_scored *r)
+{
+	double pv = qw_limit_pvalue(r->q, r->dof, r->nu, r->scale);
+
+	rp_point(r->g, r, pv);
+	if (rp->scores != NULL)
+		rp_scores_row(rp, r, pv);
 }
 
 /* Report traces: a raise opens the slot of the lowest-scoring alarm kept
@@ -189,7 +197,6 @@ void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 		       const double *x, int label)
 {
 	struct qw_result res;
-	double pv;
 	/* the core's warm-up test, taken before the reading is learned */
 	int warm = qw_ewcov_count(qw_detector_model(g->det))
 		   >= g->conf->params.warmup;
@@ -202,10 +209,24 @@ void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 	if (res.event != QW_EVENT_NONE)
 		rp_event(rp, g, t, &res);
 	if (res.scored) {
-		pv = qw_limit_pvalue(res.q, res.dof, res.nu, res.scale);
-		rp_point(g, t, &res, pv, warm);
-		if (rp->scores != NULL)
-			rp_scores_row(rp, g, t, &res, pv);
+		struct replay_scored r;
+
+		r.g = g;
+		r.t = t;
+		r.q = res.q;
+		r.limit = res.limit;
+		r.nu = res.nu;
+		r.scale = res.scale;
+		r.dof = res.dof;
+		r.over = (unsigned char)(res.over != 0);
+		r.in_alarm = (unsigned char)(res.in_alarm != 0);
+		r.warm = (unsigned char)(warm != 0);
+		r.top = res.over && res.ncontrib > 0
+			? g->conf->channels[res.contrib[0].channel] : "";
+		if (rp->tail != NULL)
+			qw_replay_tail_put(rp->tail, &r);
+		else
+			qw_replay_scored(rp, &r);
 	}
 	if (label >= 0)
 		g->has_labels = 1;

@@ -10,9 +10,10 @@
  * (replay_out.c) and the report (replay_report.c).  Deterministic: no
  * clock enters the results.
  *
- * Workload: a 10^6-reading file of a 4-channel group plays in about a
- * second; memory grows by one struct replay_point (48 bytes) per scored
- * reading, kept for the quantiles and the report. */
+ * Workload: a 10^6-reading CSV of a 16-channel group (139 MB) plays in
+ * about 2 s of one core, a capture of it in about 1 s; memory grows by one
+ * struct replay_point (48 bytes) per scored reading, kept for the
+ * quantiles and the report. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>

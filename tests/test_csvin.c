@@ -297,6 +297,142 @@ static void test_malformed_rows_reported(void **state)
 	t_close(c);
 }
 
+/* ---- the unquoted fast path against libcsv -------------------------------- */
+
+#define T_AGREE_LINES 3000  /* random lines per file */
+#define T_AGREE_SEED 2385u  /* fixed seed: failures reproduce */
+#define T_AGREE_COLS 4      /* time, a, b, label */
+
+/* One random cell text: numbers, blanks around them, empty, nan, junk. */
+static const char *t_cell(unsigned r)
+{
+	static const char *const cells[] = {
+		"2.385", " 48.9029", "-291.29\t", "\t 7e-3 ", "", "  ", "nan",
+		"1.5e400", "abc", "0x10", "12345678901234567890.5", "-0",
+		"1", "0",
+	};
+	return cells[r % (sizeof cells / sizeof cells[0])];
+}
+
+/* Appends one random line to a (unquoted) and b (every field quoted, the
+ * blanks around it kept outside the quotes, where libcsv drops them). */
+static void t_agree_line(unsigned (*rnd)(void), char *a, char *b,
+			 size_t *na, size_t *nb, size_t cap, unsigned ln)
+{
+	static const char *const ends[] = {"\n", "\r\n", "\r"};
+	unsigned kind = rnd() % 16, nf = T_AGREE_COLS, j;
+	const char *end = ends[rnd() % 3];
+
+	if (kind == 0 || kind == 1) { /* blank, or blanks only */
+		const char *bl = kind == 0 ? "" : " \t ";
+		*na += (size_t)snprintf(a + *na, cap - *na, "%s%s", bl, end);
+		*nb += (size_t)snprintf(b + *nb, cap - *nb, "%s%s", bl, end);
+		return;
+	}
+	if (kind == 2)
+		nf = T_AGREE_COLS - 1 + 2 * (rnd() % 2); /* one too few/many */
+	for (j = 0; j < nf; j++) {
+		char cell[64];
+		const char *sep = j + 1 < nf ? "," : end;
+		size_t lo, hi;
+
+		if (j == 0)
+			snprintf(cell, sizeof cell, " %u.5 ", 1700000000u + ln);
+		else if (j == 3)
+			snprintf(cell, sizeof cell, "%s", rnd() % 8 ? "0" :
+				 rnd() % 2 ? " 1\t" : "");
+		else
+			snprintf(cell, sizeof cell, "%s", t_cell(rnd()));
+		*na += (size_t)snprintf(a + *na, cap - *na, "%s%s", cell, sep);
+		for (lo = 0; cell[lo] == ' ' || cell[lo] == '\t'; lo++)
+			;
+		for (hi = strlen(cell); hi > lo && (cell[hi - 1] == ' ' ||
+						    cell[hi - 1] == '\t'); hi--)
+			;
+		*nb += (size_t)snprintf(b + *nb, cap - *nb, "%.*s\"%.*s\"%s%s",
+					(int)lo, cell, (int)(hi - lo),
+					cell + lo, cell + hi, sep);
+	}
+}
+
+static unsigned t_agree_state;
+static unsigned t_agree_rnd(void)
+{
+	/* Numerical Recipes' LCG; the high bits are the better ones */
+	t_agree_state = t_agree_state * 1664525u + 1013904223u;
+	return t_agree_state >> 16;
+}
+
+/* Reads text to the end: rows (time, a, b, label, line) into out, the
+ * malformed-row messages into log.  Returns the rows read. */
+static size_t t_agree_read(const char *text, double (*out)[5], size_t cap,
+			   struct t_log *log)
+{
+	static const char names[2][QW_CONFIG_NAME_MAX] = {"a", "b"};
+	char err[QW_CSVIN_ERR_MAX];
+	const struct qw_csvin_row *row;
+	struct qw_csvin *c = t_open(text, log);
+	size_t idx[2], n = 0;
+
+	assert_int_equal(qw_csvin_map(c, "g", names, 2, idx, err, sizeof err),
+			 0);
+	assert_int_equal(qw_csvin_label(c, "label", err, sizeof err), 0);
+	while (qw_csvin_next(c, &row) == 1 && n < cap) {
+		out[n][0] = row->time;
+		out[n][1] = row->x[idx[0]];
+		out[n][2] = row->x[idx[1]];
+		out[n][3] = row->label;
+		out[n][4] = (double)row->line;
+		n++;
+	}
+	assert_int_equal(qw_csvin_bad(c), log->n);
+	t_close(c);
+	return n;
+}
+
+/* The same random file unquoted (whole lines split by csvin_line) and
+ * with every field quoted (every line through libcsv) gives the same
+ * rows, values bit for bit, the same line numbers and the same
+ * malformed-row count and messages. */
+static void test_fast_path_agrees(void **state)
+{
+	size_t cap = 64 * (T_AGREE_LINES + 2), na = 0, nb = 0, ra, rb, i;
+	char *a = malloc(cap), *b = malloc(cap);
+	double (*xa)[5] = calloc(T_AGREE_LINES, sizeof *xa);
+	double (*xb)[5] = calloc(T_AGREE_LINES, sizeof *xb);
+	struct t_log la, lb;
+	unsigned ln;
+
+	(void)state;
+	assert_true(a && b && xa && xb);
+	t_agree_state = T_AGREE_SEED;
+	na = (size_t)snprintf(a, cap, "time,a,b,label\n");
+	nb = (size_t)snprintf(b, cap, "\"time\",\"a\",b,label\n");
+	for (ln = 0; ln < T_AGREE_LINES; ln++)
+		t_agree_line(t_agree_rnd, a, b, &na, &nb, cap, ln);
+	assert_null(strchr(a, '"'));
+	ra = t_agree_read(a, xa, T_AGREE_LINES, &la);
+	rb = t_agree_read(b, xb, T_AGREE_LINES, &lb);
+	print_message("# %zu rows, %zu malformed, both ways\n", ra, la.n);
+	assert_true(ra > T_AGREE_LINES / 4 && la.n > 0);
+	assert_int_equal(ra, rb);
+	assert_int_equal(la.n, lb.n);
+	assert_memory_equal(xa, xb, ra * sizeof *xa);
+	for (i = 0; i < la.n && i < T_MSGS; i++) {
+		/* the file names differ; the rest must not */
+		const char *ma = strchr(la.msg[i], ':');
+		const char *mb = strchr(lb.msg[i], ':');
+
+		assert_non_null(ma);
+		assert_non_null(mb);
+		assert_string_equal(ma, mb);
+	}
+	free(a);
+	free(b);
+	free(xa);
+	free(xb);
+}
+
 /* A column nobody maps may hold anything; a mapped one may not. */
 static void test_unmapped_not_parsed(void **state)
 {
@@ -546,6 +682,7 @@ int main(void)
 		cmocka_unit_test(test_missing_and_duplicate_column),
 		cmocka_unit_test(test_malformed_rows_reported),
 		cmocka_unit_test(test_unmapped_not_parsed),
+		cmocka_unit_test(test_fast_path_agrees),
 		cmocka_unit_test(test_crlf_bom_labels),
 		cmocka_unit_test(test_unterminated_quote),
 		cmocka_unit_test(test_field_too_long),

@@ -286,6 +286,116 @@ static void test_duration_overflow(void **state)
 		fail_msg("1e304d gave %g s, want QW_ENUMBER", v);
 }
 
+/* ---- the fast path against strtod ---------------------------------------- */
+
+#define NUM_FAST_CASES 400000 /* random decimals: about a second */
+#define NUM_FAST_MIN_SHARE 0.5 /* of them the fast path must take */
+
+/* A random decimal of the shapes sensor logs and configs hold: sign,
+ * 1..24 digits (leading zeros sometimes), a point anywhere or none, an
+ * exponent sometimes; blanks around sometimes. */
+static void rand_decimal(gsl_rng *r, char *buf, size_t cap)
+{
+	size_t n = 0, nd = 1 + gsl_rng_uniform_int(r, 24), i;
+	size_t point = gsl_rng_uniform_int(r, nd + 2);
+	int lead0 = gsl_rng_uniform_int(r, 4) == 0;
+
+	if (gsl_rng_uniform_int(r, 8) == 0)
+		buf[n++] = ' ';
+	if (gsl_rng_uniform_int(r, 3) == 0)
+		buf[n++] = gsl_rng_uniform_int(r, 4) ? '-' : '+';
+	for (i = 0; i < nd; i++) {
+		if (i == point)
+			buf[n++] = '.';
+		buf[n++] = (char)('0' + (i == 0 && lead0 ? 0 :
+				  gsl_rng_uniform_int(r, 10)));
+	}
+	if (point == nd)
+		buf[n++] = '.';
+	if (gsl_rng_uniform_int(r, 3) == 0)
+		n += (size_t)snprintf(buf + n, cap - n, "%c%d",
+				      gsl_rng_uniform_int(r, 2) ? 'e' : 'E',
+				      (int)gsl_rng_uniform_int(r, 61) - 30);
+	if (gsl_rng_uniform_int(r, 8) == 0)
+		buf[n++] = '\t';
+	buf[n] = '\0';
+}
+
+/* 1 when a and b are the same binary64, bit for bit. */
+static int same_bits(double a, double b)
+{
+	return memcmp(&a, &b, sizeof a) == 0;
+}
+
+/* Every input the fast path takes gives strtod's double bit for bit, and
+ * qw_num_double (fast path or not) agrees with strtod everywhere. */
+static void test_double_fast_vs_strtod(void **state)
+{
+	static const char *const edges[] = {
+		"9007199254740992", "9007199254740993", "9007199254740991",
+		"1e22", "1e23", "9007199254740992e22", "9007199254740992e-22",
+		"1e-22", "0.1", "0.3", "2.385", "-0", "-0.0", "+0e5", "0e-400",
+		"4.9e-324", "2.2250738585072014e-308", "123456789012345678",
+		"1234567890123456789", "12345678901234567890", "0.000000001",
+		"00000000000000000000000000001", "1.7976931348623157e308",
+		"1700000000.1", "1700000000.123456", "48.9029", "-291.29",
+		"5.", ".5", "3.14159265358979323846", "7e-10", "8.5e+21",
+	};
+	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+	char buf[96], *end;
+	size_t i, nfast = 0;
+	double v, w;
+
+	(void)state;
+	gsl_rng_set(r, NUM_SEED);
+	for (i = 0; i < sizeof edges / sizeof edges[0] + NUM_FAST_CASES;
+	     i++) {
+		if (i < sizeof edges / sizeof edges[0])
+			snprintf(buf, sizeof buf, "%s", edges[i]);
+		else
+			rand_decimal(r, buf, sizeof buf);
+		w = strtod(buf, &end);
+		v = -1.5;
+		if (qw_num_double_fast(buf, strlen(buf), &v)) {
+			nfast++;
+			if (!same_bits(v, w))
+				fail_msg("fast path '%s': %a, strtod %a", buf,
+					 v, w);
+		}
+		v = -1.5;
+		if (qw_num_double(buf, ALL, 0, 0, &v) != 0 ||
+		    !same_bits(v, w))
+			fail_msg("'%s': %a, strtod %a", buf, v, w);
+	}
+	print_message("# fast path took %zu of %zu inputs\n", nfast, i);
+	assert_true((double)nfast >= NUM_FAST_MIN_SHARE * NUM_FAST_CASES);
+	gsl_rng_free(r);
+}
+
+/* The checker can fail: scaling by an inexact 0.1^k instead of dividing
+ * by the exact 10^k misses strtod's double for some of these inputs. */
+static void test_double_fast_broken(void **state)
+{
+	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+	size_t i, differ = 0;
+	double w, naive;
+
+	(void)state;
+	gsl_rng_set(r, NUM_SEED);
+	for (i = 0; i < 10000; i++) {
+		char buf[64];
+		unsigned long m = gsl_rng_get(r) % 100000000ul;
+		int k = 1 + (int)gsl_rng_uniform_int(r, 15);
+
+		snprintf(buf, sizeof buf, "%lue-%d", m, k);
+		w = strtod(buf, NULL);
+		naive = (double)m * pow(0.1, k);
+		differ += !same_bits(w, naive);
+	}
+	assert_true(differ > 0);
+	gsl_rng_free(r);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
@@ -293,6 +403,8 @@ int main(void)
 		cmocka_unit_test(test_double_length),
 		cmocka_unit_test(test_double_roundtrip),
 		cmocka_unit_test(test_double_negative_nan),
+		cmocka_unit_test(test_double_fast_vs_strtod),
+		cmocka_unit_test(test_double_fast_broken),
 		cmocka_unit_test(test_u64_table),
 		cmocka_unit_test(test_duration_table),
 		cmocka_unit_test(test_duration_overflow),

@@ -6,6 +6,10 @@
  *   replay_out.c     statistics and the --json object
  *   replay_human.c   the human summary
  *   replay_report.c  the --report HTML page (replay_svg.c draws the plots)
+ *   replay_jobs.c    -j N: groups shared out over N threads, results merged
+ *                    into the serial run's order
+ *   replay_tail.c    -j N with one group: p-values and --scores rows on a
+ *                    second thread
  * Private to src/cmd/replay*.c. */
 #ifndef QW_REPLAY_H
 #define QW_REPLAY_H
@@ -17,6 +21,7 @@
 
 #include "alert.h"
 #include "config.h"
+#include "fmt.h"
 #include "quadwatch.h"
 #include "summary.h"
 
@@ -46,7 +51,16 @@ extern const char *const qw_replay_cause_names[RP_NCAUSES];
 #define RP_TRACE_PRE 120      /* readings drawn before a raise */
 #define RP_TRACE_POST 120     /* readings drawn from the raise on */
 #define RP_TRACE_LEN (RP_TRACE_PRE + RP_TRACE_POST)
-#define RP_PROGRESS_EVERY 1.0 /* s between progress lines */
+#define RP_SCORE_DIGITS 10    /* significant digits of score and limit in
+				 --scores (%.10g) */
+#define RP_PVALUE_DIGITS 6    /* of the p-value (%.6g) */
+#define RP_SCORES_BUF (1u << 20) /* bytes of stdio buffer for --scores */
+#define RP_SCORES_ROW_MAX (4 * QW_FMT_MAX + 2 * QW_CONFIG_NAME_MAX + 8)
+			      /* bytes of one --scores row: four numbers,
+				 group and channel names, commas, 0/1 */
+#define RP_JOBS_ROW_MAX RP_SCORES_ROW_MAX
+#define RP_JOBS_MAX 64        /* -j: most worker threads */
+#define RP_PROGRESS_EVERY 0.5 /* s between progress lines */
 #define RP_PROGRESS_CHECK 4096 /* readings between clock reads */
 
 /* One scored reading, kept for the statistics and the report. */
@@ -79,10 +93,8 @@ struct replay_group {
 	qw_detector *det;
 	int wanted;            /* --group selects it (or no --group) */
 	int played;            /* some input fed it */
-	int mapped;            /* the current CSV feeds it */
+	unsigned owner;        /* the worker that plays it (-j), else 0 */
 	size_t *idx;           /* p CSV column indices (current file) */
-	int own_label;         /* the current CSV has COLUMN_<group> */
-	size_t label_idx;      /* its index, when own_label */
 	double *x;             /* p values of the reading being played */
 	uint64_t rejected[RP_NCAUSES]; /* before the core */
 	uint64_t *top_count;   /* p: alarms where the channel ranked first */
@@ -108,14 +120,47 @@ struct replay_opts {
 	const char *labels;    /* --labels column */
 	int json;
 	int quiet;
+	unsigned jobs;         /* -j N: worker threads (1 = serial) */
 	char **inputs;
 	int ninputs;
+};
+
+/* How the current CSV feeds one group (per worker: each maps them all). */
+struct replay_map {
+	int mapped;            /* the current CSV feeds it */
+	int own_label;         /* the current CSV has COLUMN_<group> */
+	size_t label_idx;      /* its index, when own_label */
+};
+
+/* Where a reading stands in the serial run's order: input, CSV row or
+ * capture record, then group index (CSV) or reading in the batch
+ * (capture).  Workers tag their --scores rows and events with it so the
+ * merge restores the serial order (replay_jobs.c). */
+struct replay_key {
+	uint64_t pos;          /* input << RP_KEY_INPUT_SHIFT | row or record */
+	uint32_t sub;
+};
+#define RP_KEY_INPUT_SHIFT 40 /* rows or records per input < 2^40 */
+
+struct replay_jobs;
+struct replay_tail;
+
+/* A scored reading on its way to the p-value, the kept point and the
+ * --scores row (replay_play.c; replay_tail.c may do that part). */
+struct replay_scored {
+	struct replay_group *g;
+	double t, q, limit;      /* s, score, limit in force */
+	double nu, scale;        /* of the result, for the p-value */
+	unsigned dof;
+	unsigned char over, in_alarm, warm;
+	const char *top;         /* channel name, or "" */
 };
 
 struct replay {
 	struct replay_opts o;
 	struct qw_config cfg;
 	struct replay_group *groups; /* cfg.ngroups */
+	struct replay_group **by_name; /* groups sorted by name (topics) */
 	FILE *scores;
 	json_t *events;              /* alerts as the daemon encodes them */
 	uint64_t events_dropped;
@@ -125,6 +170,18 @@ struct replay {
 	uint64_t csv_bad;            /* malformed CSV rows in all files */
 	uint64_t unknown_topic;
 	uint64_t readings;           /* offered to detectors, all groups */
+	/* -j: the worker this is (0 in a serial run) and its bookkeeping */
+	unsigned wid;
+	struct replay_jobs *jobs;    /* NULL in a serial run */
+	struct replay_tail *tail;    /* -j with one group: the thread that
+					takes the p-values and rows */
+	struct replay_map *map;      /* cfg.ngroups */
+	size_t *scratch_idx;         /* column indices of groups not ours */
+	unsigned input;              /* index of the input being played */
+	struct replay_key key;       /* of the reading being played */
+	struct replay_key *ev_keys;  /* -j: key of each kept event */
+	uint64_t bytes_total;        /* all inputs, for the time left */
+	uint64_t bytes_before;       /* inputs finished */
 	/* progress */
 	int progress;                /* stderr is a terminal and not -q */
 	double started, next_progress;
@@ -148,13 +205,42 @@ struct replay {
 /* replay_input.c: plays one input (CSV or capture).  0, or an exit code
  * (QW_EXIT_USAGE, QW_EXIT_FAIL) after printing why. */
 int qw_replay_input(struct replay *rp, const char *path);
+/* Sorts rp->by_name for the capture topic lookup (after setup). */
+void qw_replay_topics_sort(struct replay *rp);
+/* 1 when worker rp plays group g. */
+static inline int qw_replay_owns(const struct replay *rp,
+				 const struct replay_group *g)
+{
+	return g->owner == rp->wid;
+}
+
+/* replay_jobs.c: plays every input with o.jobs workers (o.jobs > 1) and
+ * merges their scores, events and counters into rp as a serial run would
+ * have left them.  0 or an exit code (message printed). */
+int qw_replay_jobs(struct replay *rp);
+/* A worker's --scores row (n bytes), tagged with rp->key. */
+void qw_replay_jobs_row(struct replay *rp, const char *row, size_t n);
+/* A worker's readings so far, made visible to the progress line; and the
+ * sum over all workers. */
+void qw_replay_jobs_publish(struct replay *rp);
+uint64_t qw_replay_jobs_readings(const struct replay *rp);
 
 /* replay_play.c */
 void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 		       const double *x, int label);
 int qw_replay_scores_open(struct replay *rp);
+/* The p-value, the point and the --scores row of one scored reading. */
+void qw_replay_scored(struct replay *rp, const struct replay_scored *r);
 void qw_replay_progress(struct replay *rp, int last);
 void qw_replay_finish(struct replay *rp);
+
+/* replay_tail.c: with -j N (N > 1) and one group to play, the p-values,
+ * points and --scores rows are done by a second thread, in order.
+ * _start: 0 or QW_ENOMEM; _put hands one scored reading over; _finish
+ * waits until all are done and frees the tail (NULL: no-op). */
+int qw_replay_tail_start(struct replay *rp);
+void qw_replay_tail_put(struct replay_tail *tl, const struct replay_scored *r);
+void qw_replay_tail_finish(struct replay *rp);
 
 /* replay_out.c */
 /* Per-group figures of the summary, computed once at the end. */

@@ -9,8 +9,11 @@
  *
  * Workload: one pass per file; the only buffers are the group's x[p] and
  * the decode batch sized from max_frame, both allocated at setup. */
+#include <errno.h>
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "capture.h"
@@ -33,6 +36,57 @@ const char *const qw_replay_cause_names[RP_NCAUSES] = {
 	[RP_OVERFLOW] = "overflow",
 	[RP_EMPTY] = "empty",
 };
+
+/* An error of the replay on stderr, from the first worker only (the
+ * others meet the same one at the same place). */
+static void rp_say(const struct replay *rp, const char *fmt, ...)
+	__attribute__((format(printf, 2, 3)));
+static void rp_say(const struct replay *rp, const char *fmt, ...)
+{
+	va_list ap;
+
+	if (rp->wid != 0)
+		return;
+	fprintf(stderr, "%s: ", RP_PROG(rp));
+	va_start(ap, fmt);
+	vfprintf(stderr, fmt, ap);
+	va_end(ap);
+	fputc('\n', stderr);
+}
+
+static void rp_silent(void *ctx, const char *msg)
+{
+	(void)ctx;
+	(void)msg;
+}
+
+/* strcmp of topic[0..tlen) (not NUL-terminated) with name. */
+static int rp_name_cmp(const char *topic, size_t tlen, const char *name)
+{
+	size_t ln = strlen(name);
+	int c = memcmp(topic, name, tlen < ln ? tlen : ln);
+
+	if (c != 0)
+		return c;
+	return tlen < ln ? -1 : tlen > ln;
+}
+
+static int rp_by_name(const void *a, const void *b)
+{
+	const struct replay_group *ga = *(const struct replay_group *const *)a;
+	const struct replay_group *gb = *(const struct replay_group *const *)b;
+
+	return strcmp(ga->conf->name, gb->conf->name);
+}
+
+void qw_replay_topics_sort(struct replay *rp)
+{
+	size_t i;
+
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		rp->by_name[i] = &rp->groups[i];
+	qsort(rp->by_name, rp->cfg.ngroups, sizeof *rp->by_name, rp_by_name);
+}
 
 /* 1 when the CSV has a column called name. */
 static int rp_has_column(const struct qw_csvin *c, const char *name)
@@ -59,22 +113,23 @@ static int rp_csv_labels(struct replay *rp, struct qw_csvin *c)
 		return 0;
 	for (i = 0; i < rp->cfg.ngroups; i++) {
 		struct replay_group *g = &rp->groups[i];
+		struct replay_map *m = &rp->map[i];
 		int n = snprintf(own[0], sizeof own[0], "%s_%s", rp->o.labels,
 				 g->conf->name);
 
-		g->own_label = 0;
-		if (!g->mapped)
+		m->own_label = 0;
+		if (!m->mapped)
 			continue;
 		if (n > 0 && (size_t)n < sizeof own[0] &&
 		    rp_has_column(c, own[0]) &&
-		    qw_csvin_map(c, g->conf->name, own, 1, &g->label_idx, err,
+		    qw_csvin_map(c, g->conf->name, own, 1, &m->label_idx, err,
 				 sizeof err) == 0)
-			g->own_label = 1;
+			m->own_label = 1;
 		else
 			shared = 1;
 	}
 	if (shared && qw_csvin_label(c, rp->o.labels, err, sizeof err) != 0) {
-		fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
+		rp_say(rp, "%s", err);
 		return QW_EXIT_USAGE;
 	}
 	return 0;
@@ -92,23 +147,30 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 
 	for (i = 0; i < rp->cfg.ngroups; i++) {
 		struct replay_group *g = &rp->groups[i];
+		/* every worker maps every group, so all parse the same
+		 * columns and refuse the same rows; only the owner keeps
+		 * the indices */
+		int ours = qw_replay_owns(rp, g);
 
-		g->mapped = 0;
+		rp->map[i].mapped = 0;
 		if (!g->wanted)
 			continue;
 		if (qw_csvin_map(c, g->conf->name, g->conf->channels,
-				 g->conf->p, g->idx, err, sizeof err) == 0) {
-			g->mapped = 1;
-			g->played = 1;
+				 g->conf->p, ours ? g->idx : rp->scratch_idx,
+				 err, sizeof err) == 0) {
+			rp->map[i].mapped = 1;
+			if (ours)
+				g->played = 1;
 			nmapped++;
 			continue;
 		}
 		if (rp->o.group != NULL) {
-			fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
+			rp_say(rp, "%s", err);
 			return QW_EXIT_USAGE;
 		}
-		qw_log(QW_LOG_INFO, "%s (group %s not played from this file)",
-		       err, g->conf->name);
+		if (rp->wid == 0)
+			qw_log(QW_LOG_INFO, "%s (group %s not played from "
+			       "this file)", err, g->conf->name);
 		if (used + 3 < sizeof why) {
 			int n = snprintf(why + used, sizeof why - used,
 					 "\n  %s", err);
@@ -118,8 +180,8 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 		}
 	}
 	if (nmapped == 0) {
-		fprintf(stderr, "%s: %s: no group has all its "
-			"channels in this file:%s\n", RP_PROG(rp), path, why);
+		rp_say(rp, "%s: no group has all its channels in this file:%s",
+		       path, why);
 		return QW_EXIT_USAGE;
 	}
 	return rp_csv_labels(rp, c);
@@ -133,22 +195,26 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	size_t i, k;
 	int rc, label;
 
+	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
 	while ((rc = qw_csvin_next(c, &row)) == 1) {
 		for (i = 0; i < rp->cfg.ngroups; i++) {
 			struct replay_group *g = &rp->groups[i];
+			const struct replay_map *m = &rp->map[i];
 
-			if (!g->mapped)
+			if (!m->mapped || !qw_replay_owns(rp, g))
 				continue;
 			for (k = 0; k < g->conf->p; k++)
 				g->x[k] = row->x[g->idx[k]];
 			label = row->label;
-			if (g->own_label) {
-				double v = row->x[g->label_idx];
+			if (m->own_label) {
+				double v = row->x[m->label_idx];
 
 				label = isnan(v) ? -1 : v != 0.0;
 			}
+			rp->key.sub = (uint32_t)i;
 			qw_replay_reading(rp, g, row->time, g->x, label);
 		}
+		rp->key.pos++;
 		if (++n % RP_PROGRESS_CHECK == 0) {
 			qw_csvin_progress(c, &rp->cur_done, &rp->cur_total);
 			qw_replay_progress(rp, 0);
@@ -156,11 +222,11 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	}
 	if (rc < 0) {
 		qw_replay_progress(rp, 1);
-		fprintf(stderr, "%s: %s\n", RP_PROG(rp), qw_csvin_error(c));
+		rp_say(rp, "%s", qw_csvin_error(c));
 		return QW_EXIT_FAIL;
 	}
 	for (i = 0; i < rp->cfg.ngroups; i++)
-		if (rp->groups[i].mapped)
+		if (rp->map[i].mapped && qw_replay_owns(rp, &rp->groups[i]))
 			rp->groups[i].rejected[RP_CSV_ROW] += qw_csvin_bad(c);
 	rp->csv_bad += qw_csvin_bad(c);
 	return 0;
@@ -170,10 +236,12 @@ static int rp_csv(struct replay *rp, const char *path)
 {
 	struct qw_csvin *c = NULL;
 	char err[QW_CSVIN_ERR_MAX];
-	int rc = qw_csvin_open(path, NULL, NULL, &c, err, sizeof err);
+	/* malformed rows are logged by the first worker only */
+	int rc = qw_csvin_open(path, rp->wid == 0 ? NULL : rp_silent, NULL,
+			       &c, err, sizeof err);
 
 	if (rc != 0) {
-		fprintf(stderr, "%s: %s\n", RP_PROG(rp), err);
+		rp_say(rp, "%s", err);
 		return rc == QW_EFORMAT ? QW_EXIT_USAGE : QW_EXIT_FAIL;
 	}
 	rc = rp_csv_map(rp, c, path);
@@ -196,16 +264,24 @@ static int rp_wire_cause(int rc)
 	}
 }
 
+/* The group named by topic (tlen bytes), or NULL: binary search of the
+ * names sorted at setup (qw_replay_topics_sort), O(log groups). */
 static struct replay_group *rp_topic(struct replay *rp, const char *topic,
 				     size_t tlen)
 {
-	size_t i;
+	size_t lo = 0, hi = rp->cfg.ngroups;
 
-	for (i = 0; i < rp->cfg.ngroups; i++) {
-		const char *name = rp->cfg.groups[i].name;
+	while (lo < hi) {
+		size_t mid = lo + (hi - lo) / 2;
+		struct replay_group *g = rp->by_name[mid];
+		int c = rp_name_cmp(topic, tlen, g->conf->name);
 
-		if (strlen(name) == tlen && memcmp(name, topic, tlen) == 0)
-			return &rp->groups[i];
+		if (c == 0)
+			return g;
+		if (c < 0)
+			hi = mid;
+		else
+			lo = mid + 1;
 	}
 	return NULL;
 }
@@ -222,7 +298,7 @@ static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
 		rp->unknown_topic++;
 		return;
 	}
-	if (!g->wanted)
+	if (!g->wanted || !qw_replay_owns(rp, g))
 		return;
 	g->played = 1;
 	qw_wire_batch_init(&b, g->conf->p, rp->batch, rp->batch_len);
@@ -231,8 +307,10 @@ static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
 		g->rejected[rp_wire_cause(rc)]++;
 		return;
 	}
-	for (k = 0; k < b.n; k++)
+	for (k = 0; k < b.n; k++) {
+		rp->key.sub = (uint32_t)k;
 		qw_replay_reading(rp, g, b.t[k], b.x + k * b.p, -1);
+	}
 }
 
 static int rp_capture(struct replay *rp, const char *path)
@@ -243,12 +321,13 @@ static int rp_capture(struct replay *rp, const char *path)
 	int rc = qw_capture_reader_open(path, rp->cfg.max_frame, &r);
 
 	if (rc != 0) {
-		fprintf(stderr, "%s: %s: %s\n", RP_PROG(rp), path,
-			qw_strerror(rc));
+		rp_say(rp, "%s: %s", path, qw_strerror(rc));
 		return QW_EXIT_FAIL;
 	}
+	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
 	while ((rc = qw_capture_reader_next(r, &rec)) == 1) {
 		rp_message(rp, rec);
+		rp->key.pos++;
 		if (++n % (RP_PROGRESS_CHECK / 64) == 0) {
 			qw_capture_reader_progress(r, &rp->cur_done,
 						   &rp->cur_total);
@@ -258,16 +337,16 @@ static int rp_capture(struct replay *rp, const char *path)
 	qw_capture_reader_close(r);
 	if (rc == QW_ETRUNC) {
 		/* a recording stopped hard: keep what was whole */
-		qw_log(QW_LOG_WARN, "%s: the last record is cut short; the "
+		if (rp->wid == 0)
+			qw_log(QW_LOG_WARN, "%s: the last record is cut short; the "
 		       "%llu whole records before it were played", path,
 		       (unsigned long long)n);
 		return 0;
 	}
 	if (rc < 0) {
 		qw_replay_progress(rp, 1);
-		fprintf(stderr, "%s: %s: after record %llu: "
-			"%s\n", RP_PROG(rp), path, (unsigned long long)n,
-			qw_strerror(rc));
+		rp_say(rp, "%s: after record %llu: %s", path,
+		       (unsigned long long)n, qw_strerror(rc));
 		return QW_EXIT_FAIL;
 	}
 	return 0;
@@ -281,9 +360,10 @@ int qw_replay_input(struct replay *rp, const char *path)
 	rp->cur_done = 0;
 	rp->cur_total = 0;
 	if (rc < 0) {
-		fprintf(stderr, "%s: %s: ", RP_PROG(rp), path);
-		perror(NULL);
+		rp_say(rp, "%s: %s", path, strerror(errno));
 		return QW_EXIT_FAIL;
 	}
-	return rc == 1 ? rp_capture(rp, path) : rp_csv(rp, path);
+	rc = rc == 1 ? rp_capture(rp, path) : rp_csv(rp, path);
+	rp->bytes_before += rp->cur_total;
+	return rc;
 }

@@ -15,13 +15,15 @@
  * reading; the lag-1 autocorrelation of the eligible scores in stream
  * order; with persist k > 1 the warnings of qw_summary_warn.
  *
- * Workload: once per replay; two sorts of at most the scored readings. */
+ * Workload: once per replay; one selection and one radix sort (sort.h)
+ * of at most the scored readings. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "log.h"
 #include "replay.h"
+#include "sort.h"
 
 #define RP_ADVICE "whiten the readings (dynamics = var1 or dynamics = " \
 	"ar1 in the [group %s] section) or fit the model from a healthy " \
@@ -106,11 +108,13 @@ static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
 {
 	double *qf = malloc((g->npts + 1) * sizeof *qf);
 	double *pv = malloc((g->npts + 1) * sizeof *pv);
+	double *tmp = malloc((g->npts + 1) * sizeof *tmp);
 	size_t i, nq = 0, np = 0;
 
-	if (qf == NULL || pv == NULL) {
+	if (qf == NULL || pv == NULL || tmp == NULL) {
 		free(qf);
 		free(pv);
+		free(tmp);
 		return QW_ERROR(QW_ENOMEM);
 	}
 	rp_dependence(g, st, qf);
@@ -124,9 +128,13 @@ static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
 		if (pt->pvalue >= 0.0 && pt->pvalue <= 1.0)
 			pv[np++] = pt->pvalue;
 	}
+	/* the same figures as qw_summary_quantile's comparison sort, in
+	 * O(n): the score quantile by selection, the p-values by a radix
+	 * sort (the KS distance needs them all in order) */
+	qw_sort_double(pv, tmp, np);
 	st->tune_n = nq;
-	st->tune_limit = qw_summary_quantile(qf, nq, 1.0 - st->alpha);
-	st->tune_alpha = qw_summary_quantile(pv, np, st->alpha);
+	st->tune_limit = qw_quantile_select(qf, nq, 1.0 - st->alpha);
+	st->tune_alpha = qw_summary_quantile_sorted(pv, np, st->alpha);
 	st->tune_apd = g->conf->params.alarms_per_day * st->tune_alpha
 		       / st->alpha;
 	st->ks = qw_summary_ks_uniform(pv, np);
@@ -134,6 +142,7 @@ static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
 	st->ks_n = np;
 	free(qf);
 	free(pv);
+	free(tmp);
 	return 0;
 }
 

@@ -182,12 +182,22 @@ int qw_bus_curve_public(const unsigned char sec[QW_BUS_KEY_BYTES],
 	return rc;
 }
 
+#define BUS_SUB_SNDHWM 65536 /* subscription messages a SUB may queue: one
+				per topic (group), beyond QW_CONFIG_MAX_GROUPS;
+				libzmq's default of 1000 lost groups past the
+				1000th */
+
 static int bus_options(void *z, int kind, const struct qw_bus_opts *o)
 {
 	if (o->max_msg > 0 &&
 	    zmq_setsockopt(z, ZMQ_MAXMSGSIZE, &o->max_msg, sizeof o->max_msg))
 		return QW_ERROR(QW_EIO);
 	if (o->sndhwm > 0 && bus_setint(z, ZMQ_SNDHWM, o->sndhwm))
+		return QW_ERROR(QW_EIO);
+	/* a SUB sends only its subscriptions; libzmq silently drops those
+	 * past the send HWM while the connection is not up yet */
+	if (kind == QW_BUS_SUB && o->sndhwm <= 0 &&
+	    bus_setint(z, ZMQ_SNDHWM, BUS_SUB_SNDHWM))
 		return QW_ERROR(QW_EIO);
 	if (o->rcvhwm > 0 && bus_setint(z, ZMQ_RCVHWM, o->rcvhwm))
 		return QW_ERROR(QW_EIO);

@@ -10,8 +10,10 @@
 #include "quadwatch.h"
 
 #define QW_CONFIG_MAX_INPUTS 16   /* input endpoints in [bus] */
-#define QW_CONFIG_MAX_GROUPS 1024 /* [group NAME] sections: 10^4 channels
-				     at p = 16 is 625 (docs/operations.md) */
+#define QW_CONFIG_MAX_GROUPS 4096 /* [group NAME] sections: 10^4 channels
+				     at p = 16 is 625 (docs/operations.md);
+				     the daemon finds a topic by hash
+				     (run_setup.c), replay by binary search */
 #define QW_CONFIG_NAME_MAX 64     /* bytes in a group or channel name */
 #define QW_CONFIG_ENDPOINT_MAX 256/* bytes in an endpoint */
 #define QW_CONFIG_ERR_MAX 512     /* bytes in an error message */

@@ -1,9 +1,23 @@
-/* num.c: the one number parser (see num.h).  Workload: a handful of calls
- * per config line, one per channel per text-format reading. */
+/* num.c: the one number parser (see num.h).
+ *
+ * qw_num_double first tries an exact fast path (Clinger 1990, "How to read
+ * floating point numbers accurately", PLDI, the "fast path" of section 4):
+ * a plain decimal w * 10^e whose significand w has at most 19 digits and
+ * fits in 2^53, with |e| <= 22, is w (exact as a double) times or divided
+ * by 10^|e| (exact as a double up to 10^22), so the one IEEE multiply or
+ * divide rounds the true value once, correctly: the double strtod gives.
+ * Everything else (more digits, larger exponents, nan, inf, hex, junk)
+ * goes to strtod, which also words every refusal.
+ * tests/test_num.c compares the two bit for bit on random and edge inputs.
+ *
+ * Workload: a handful of calls per config line, one per channel per
+ * text-format reading, and one per cell of a replayed CSV (10^7 and more
+ * per file): the fast path takes ~10 ns, strtod ~100 ns. */
 #include "num.h"
 
 #include <ctype.h>
 #include <errno.h>
+#include <float.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -31,12 +45,97 @@ static int num_trim(const char *s, size_t len, char *buf)
 	return 0;
 }
 
+#define NUM_FAST_DIGITS 19      /* significant digits that fit a uint64 */
+#define NUM_FAST_W_MAX (1ull << 53) /* significands exact in a binary64 */
+#define NUM_FAST_EXP_MAX 22     /* 10^22 is the largest exact power of ten
+				   (5^22 < 2^53) */
+#define NUM_EXP_CAP 10000       /* exponent digits stop counting here */
+
+/* Exact powers of ten, 10^0 .. 10^22. */
+static const double num_pow10[NUM_FAST_EXP_MAX + 1] = {
+	1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11,
+	1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+};
+
+static int num_blank(char c)
+{
+	return c == ' ' || c == '\t' || c == '\n' || c == '\r' ||
+	       c == '\v' || c == '\f';
+}
+
+int qw_num_double_fast(const char *s, size_t len, double *out)
+{
+	const char *p = s, *e = s + len;
+	const char *first;
+	uint64_t w = 0;
+	int nd = 0, digits = 0, neg = 0, exp10 = 0;
+	double v;
+
+#if FLT_EVAL_METHOD != 0
+	return 0; /* excess precision would round twice */
+#endif
+	while (p < e && num_blank(*p))
+		p++;
+	while (e > p && num_blank(e[-1]))
+		e--;
+	if (e - p >= NUM_MAX_TEXT)
+		return 0;
+	first = p;
+	if (p < e && (*p == '-' || *p == '+'))
+		neg = *p++ == '-';
+	for (; p < e && *p >= '0' && *p <= '9'; p++, digits++) {
+		if (w == 0 && *p == '0')
+			continue; /* leading zeros are not significant */
+		if (++nd > NUM_FAST_DIGITS)
+			return 0;
+		w = w * 10 + (uint64_t)(*p - '0');
+	}
+	if (p < e && *p == '.') {
+		for (p++; p < e && *p >= '0' && *p <= '9'; p++, digits++) {
+			exp10--;
+			if (w == 0 && *p == '0')
+				continue;
+			if (++nd > NUM_FAST_DIGITS)
+				return 0;
+			w = w * 10 + (uint64_t)(*p - '0');
+		}
+	}
+	if (digits == 0)
+		return 0;
+	if (p < e && (*p == 'e' || *p == 'E')) {
+		int eneg = 0, ex = 0, ed = 0;
+
+		p++;
+		if (p < e && (*p == '-' || *p == '+'))
+			eneg = *p++ == '-';
+		for (; p < e && *p >= '0' && *p <= '9'; p++, ed++)
+			if (ex < NUM_EXP_CAP)
+				ex = ex * 10 + (*p - '0');
+		if (ed == 0)
+			return 0;
+		exp10 += eneg ? -ex : ex;
+	}
+	if (p != e || w > NUM_FAST_W_MAX || first == e)
+		return 0;
+	if (exp10 < -NUM_FAST_EXP_MAX || exp10 > NUM_FAST_EXP_MAX)
+		return 0;
+	/* step: one correctly rounded operation on exact operands */
+	v = exp10 >= 0 ? (double)w * num_pow10[exp10]
+		       : (double)w / num_pow10[-exp10];
+	*out = neg ? -v : v;
+	return 1;
+}
+
 int qw_num_double(const char *s, size_t len, int allow_nan, int allow_inf,
 		  double *out)
 {
 	char buf[NUM_MAX_TEXT], *end;
 	double v;
 
+	if (len == (size_t)-1)
+		len = strlen(s);
+	if (qw_num_double_fast(s, len, out)) /* a NUL is not a digit: it falls back */
+		return 0;
 	if (num_trim(s, len, buf) != 0)
 		return QW_ENUMBER;
 	/* printf writes a NaN with its sign bit set as "-nan" */

@@ -13,6 +13,12 @@
  * allow_inf.  Returns 0 or QW_ENUMBER. */
 int qw_num_double(const char *s, size_t len, int allow_nan, int allow_inf,
 		  double *out);
+/* The exact fast path of qw_num_double alone (Clinger's): 1 and *out (the
+ * double strtod gives) when s[0..len) is a plain decimal [+-]digits[.digits]
+ * [e[+-]digits] with at most 19 significant digits, significand <= 2^53
+ * and decimal exponent within +-22, blanks around allowed; else 0, *out
+ * untouched.  Exposed for the tests. */
+int qw_num_double_fast(const char *s, size_t len, double *out);
 /* Unsigned integer in [lo, hi], decimal only.  0 or QW_ENUMBER. */
 int qw_num_u64(const char *s, size_t len, uint64_t lo, uint64_t hi,
 	       uint64_t *out);

@@ -177,6 +177,11 @@ static void loaded_groups(void **st)
 	assert_int_equal(qw_model_detector(&f->cfg.groups[0], &d, &meta, err,
 					   sizeof err), 0);
 	assert_true(qw_detector_frozen(d));
+	/* the group counts its own readings; the model is the fit's */
+	assert_true(qw_detector_counters(d)->readings == 0);
+	assert_true(qw_detector_count(d) > 0);
+	/* a fixed model's steady limit is the one in force */
+	assert_true(qw_detector_steady_limit(d) == qw_detector_limit(d));
 	assert_true(meta.limit_factor == MD_FACTOR);
 	assert_true(qwt_reldiff(qw_detector_limit(d),
 				MD_FACTOR * qw_detector_limit(f->fitted),

@@ -48,6 +48,13 @@ int qw_detector_frozen(const qw_detector *d)
 	return d->frozen;
 }
 
+void qw_detector_counters_reset(qw_detector *d)
+{
+	memset(&d->cnt, 0, sizeof d->cnt);
+	qw_alarm_reset(&d->alarm);
+	d->alarm_run = 0;
+}
+
 int qw_detector_scale_model(qw_detector *d, double s)
 {
 	if (!(s > 0) || !isfinite(s))
@@ -59,11 +66,13 @@ int qw_detector_scale_model(qw_detector *d, double s)
 /* Fixed point of ewcov.c's recursions: nu = (2-lam)/lam (less var1's p
  * conditioning channels), scale = 1/(1-lam), and a model learned wholly
  * under the guard (tshare = 1).  Without forgetting nu grows without
- * bound: Inf. */
+ * bound: Inf.  A frozen (fixed) model keeps the figures it has. */
 double qw_detector_steady_nu(const qw_detector *d)
 {
 	if (!d->par.correct)
 		return INFINITY;
+	if (d->frozen) /* a fixed model stays as it is */
+		return qw_det_nu(d, qw_det_k(d));
 	if (!(d->lam > 0))
 		return INFINITY;
 	return (2.0 - d->lam) / d->lam - qw_det_k(d);
@@ -71,6 +80,8 @@ double qw_detector_steady_nu(const qw_detector *d)
 
 double qw_detector_steady_scale(const qw_detector *d)
 {
+	if (d->par.correct && d->frozen)
+		return qw_det_scale(d);
 	return d->par.correct ? 1.0 / (d->kappa * (1.0 - d->lam)) : 1.0;
 }
 

@@ -273,6 +273,9 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
  * Re-baselining a frozen group unfreezes it. */
 void qw_detector_freeze(qw_detector *d, int on);
 int qw_detector_frozen(const qw_detector *d);
+/* Zeroes the counters and the alarm state and keeps the learned model (a
+ * model loaded from a fit starts its own count). */
+void qw_detector_counters_reset(qw_detector *d);
 /* Multiplies the learned covariance by s > 0 (a consistency factor for a
  * trimmed fit).  QW_EINVAL for s not finite and positive. */
 int qw_detector_scale_model(qw_detector *d, double s);

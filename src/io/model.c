@@ -269,6 +269,7 @@ static int model_build(const char *path, const struct qw_model_view *v,
 		return rc;
 	}
 	qw_detector_freeze(d, gc->model_use == QW_MODEL_FIXED);
+	qw_detector_counters_reset(d); /* the group counts its own readings */
 	*out = d;
 	return 0;
 }

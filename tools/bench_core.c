@@ -76,8 +76,10 @@ static double *readings(size_t p)
 	return x;
 }
 
-/* ns per reading through qw_detector_add, after warm-up. */
-static double run_detector(size_t p, const double *x, size_t n)
+/* ns per reading through qw_detector_add, after warm-up, with the given
+ * whitening and mode. */
+static double run_kind(size_t p, const double *x, size_t n,
+		       enum qw_dynamics dyn, enum qw_mode mode)
 {
 	struct qw_params par;
 	struct qw_result res;
@@ -88,6 +90,8 @@ static double run_detector(size_t p, const double *x, size_t n)
 	qw_params_default(&par, p);
 	par.half_life = 2000;
 	par.learn = QW_LEARN_ALL;
+	par.dynamics = dyn;
+	par.mode = mode;
 	d = qw_detector_alloc(&par);
 	for (k = 0; k < 3000; k++)
 		qw_detector_add(d, (double)k, x + (k % BENCH_READINGS) * p, &res);
@@ -106,6 +110,52 @@ static double run_detector(size_t p, const double *x, size_t n)
 	if (sink == 42.0)
 		puts("");
 	return median(v, m);
+}
+
+static double run_detector(size_t p, const double *x, size_t n)
+{
+	return run_kind(p, x, n, QW_DYN_NONE, QW_MODE_PLAIN);
+}
+
+/* Whitening and MEWMA beside the plain update: medians of BENCH_RUNS
+ * runs, each run interleaved over the four kinds. */
+static void bench_kinds(void)
+{
+	static const size_t sizes[] = {4, 16, 64};
+	static const char *const names[] = {"ar1", "var1", "mewma",
+					    "var1+mewma"};
+	static const enum qw_dynamics dyn[] = {QW_DYN_AR1, QW_DYN_VAR1,
+					       QW_DYN_NONE, QW_DYN_VAR1};
+	static const enum qw_mode mode[] = {QW_MODE_PLAIN, QW_MODE_PLAIN,
+					    QW_MODE_MEWMA, QW_MODE_MEWMA};
+	size_t i, j, k;
+
+	printf("\nwhitening and MEWMA: ns per reading, median of %d runs "
+	       "(ratio to the plain update)\n%5s %10s", BENCH_RUNS, "p",
+	       "plain");
+	for (k = 0; k < 4; k++)
+		printf(" %17s", names[k]);
+	putchar('\n');
+	for (i = 0; i < sizeof sizes / sizeof sizes[0]; i++) {
+		size_t p = sizes[i];
+		double *x = readings(p), v[5][BENCH_RUNS], m[5];
+		size_t n = (size_t)(BENCH_TARGET_NS /
+				    (2.4 * (double)(p * p) + 60));
+
+		for (j = 0; j < BENCH_RUNS; j++) {
+			v[0][j] = run_detector(p, x, n);
+			for (k = 0; k < 4; k++)
+				v[k + 1][j] = run_kind(p, x, n, dyn[k],
+						       mode[k]);
+		}
+		for (k = 0; k < 5; k++)
+			m[k] = median(v[k], BENCH_RUNS);
+		printf("%5zu %10.1f", p, m[0]);
+		for (k = 1; k < 5; k++)
+			printf(" %10.1f (%4.2fx)", m[k], m[k] / m[0]);
+		putchar('\n');
+		free(x);
+	}
 }
 
 /* ns per reading: EW update of the explicit covariance, re-factor with
@@ -184,5 +234,6 @@ int main(void)
 		qw_detector_free(d);
 		free(x);
 	}
+	bench_kinds();
 	return 0;
 }

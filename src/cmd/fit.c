@@ -185,6 +185,8 @@ static int fit_setup(struct replay *rp, struct fit_rec **recs)
 		if (g->idx == NULL || g->x == NULL)
 			goto nomem;
 	}
+	if (qw_replay_input_alloc(rp) != 0)
+		goto nomem;
 	return 0;
 nomem:
 	fprintf(stderr, FIT_PROG ": out of memory\n");
@@ -205,6 +207,7 @@ static void fit_teardown(struct replay *rp, struct fit_rec *recs)
 	}
 	free(recs);
 	free(rp->groups);
+	qw_replay_input_free(rp);
 	free(rp->batch);
 	qw_config_free(&rp->cfg);
 	free(rp->o.inputs);

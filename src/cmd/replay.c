@@ -183,9 +183,7 @@ static void rp_teardown(struct replay *rp)
 		free(g->traces);
 	}
 	free(rp->groups);
-	free(rp->by_name);
-	free(rp->map);
-	free(rp->scratch_idx);
+	qw_replay_input_free(rp);
 	free(rp->batch);
 	free(rp->alert_buf);
 	json_decref(rp->events);
@@ -199,7 +197,7 @@ static void rp_teardown(struct replay *rp)
 static int rp_setup(struct replay *rp)
 {
 	char err[QW_CONFIG_ERR_MAX];
-	size_t i, maxp = 1;
+	size_t i;
 
 	if (qw_config_load(rp->o.config, &rp->cfg, err, sizeof err) != 0) {
 		fprintf(stderr, "quadwatch replay: %s\n", err);
@@ -212,18 +210,11 @@ static int rp_setup(struct replay *rp)
 		return QW_EXIT_USAGE;
 	}
 	rp->groups = calloc(rp->cfg.ngroups, sizeof *rp->groups);
-	rp->by_name = calloc(rp->cfg.ngroups + 1, sizeof *rp->by_name);
-	rp->map = calloc(rp->cfg.ngroups + 1, sizeof *rp->map);
-	for (i = 0; i < rp->cfg.ngroups; i++)
-		if (rp->cfg.groups[i].p > maxp)
-			maxp = rp->cfg.groups[i].p;
-	rp->scratch_idx = calloc(maxp, sizeof *rp->scratch_idx);
 	rp->batch_len = qw_verdict_buffer_len(&rp->cfg);
 	rp->batch = malloc(rp->batch_len * sizeof *rp->batch);
 	rp->alert_buf = malloc(RP_ALERT_MAX);
 	rp->events = json_array();
-	if (rp->groups == NULL || rp->batch == NULL || rp->by_name == NULL ||
-	    rp->map == NULL || rp->scratch_idx == NULL ||
+	if (rp->groups == NULL || rp->batch == NULL ||
 	    rp->alert_buf == NULL || rp->events == NULL)
 		goto nomem;
 	for (i = 0; i < rp->cfg.ngroups; i++) {
@@ -234,7 +225,8 @@ static int rp_setup(struct replay *rp)
 		if (rc != 0)
 			goto nomem;
 	}
-	qw_replay_topics_sort(rp);
+	if (qw_replay_input_alloc(rp) != 0)
+		goto nomem;
 	return 0;
 nomem:
 	fprintf(stderr, "quadwatch replay: out of memory\n");

@@ -205,8 +205,11 @@ struct replay {
 /* replay_input.c: plays one input (CSV or capture).  0, or an exit code
  * (QW_EXIT_USAGE, QW_EXIT_FAIL) after printing why. */
 int qw_replay_input(struct replay *rp, const char *path);
-/* Sorts rp->by_name for the capture topic lookup (after setup). */
-void qw_replay_topics_sort(struct replay *rp);
+/* The input side's tables, once the groups exist: the topic index (group
+ * names sorted, for the capture's topics), the CSV column map and its
+ * scratch.  0 or QW_ENOMEM; qw_replay_input_free frees them (NULL-safe). */
+int qw_replay_input_alloc(struct replay *rp);
+void qw_replay_input_free(struct replay *rp);
 /* 1 when worker rp plays group g. */
 static inline int qw_replay_owns(const struct replay *rp,
 				 const struct replay_group *g)

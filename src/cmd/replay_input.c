@@ -79,13 +79,29 @@ static int rp_by_name(const void *a, const void *b)
 	return strcmp(ga->conf->name, gb->conf->name);
 }
 
-void qw_replay_topics_sort(struct replay *rp)
+int qw_replay_input_alloc(struct replay *rp)
 {
-	size_t i;
+	size_t i, maxp = 1;
 
+	for (i = 0; i < rp->cfg.ngroups; i++)
+		if (rp->cfg.groups[i].p > maxp)
+			maxp = rp->cfg.groups[i].p;
+	rp->by_name = calloc(rp->cfg.ngroups + 1, sizeof *rp->by_name);
+	rp->map = calloc(rp->cfg.ngroups + 1, sizeof *rp->map);
+	rp->scratch_idx = calloc(maxp, sizeof *rp->scratch_idx);
+	if (rp->by_name == NULL || rp->map == NULL || rp->scratch_idx == NULL)
+		return QW_ERROR(QW_ENOMEM);
 	for (i = 0; i < rp->cfg.ngroups; i++)
 		rp->by_name[i] = &rp->groups[i];
 	qsort(rp->by_name, rp->cfg.ngroups, sizeof *rp->by_name, rp_by_name);
+	return 0;
+}
+
+void qw_replay_input_free(struct replay *rp)
+{
+	free(rp->by_name);
+	free(rp->map);
+	free(rp->scratch_idx);
 }
 
 /* 1 when the CSV has a column called name. */
@@ -265,7 +281,7 @@ static int rp_wire_cause(int rc)
 }
 
 /* The group named by topic (tlen bytes), or NULL: binary search of the
- * names sorted at setup (qw_replay_topics_sort), O(log groups). */
+ * names sorted at setup (qw_replay_input_alloc), O(log groups). */
 static struct replay_group *rp_topic(struct replay *rp, const char *topic,
 				     size_t tlen)
 {

@@ -356,6 +356,14 @@ static void time_based_half_life(void **st)
 	assert_int_equal(qw_detector_add(d, 99, x, &res), QW_ETIME);
 	assert_int_equal(qw_detector_counters(d)->rej_time, 1);
 	assert_int_equal(qw_detector_counters(d)->learned, 2);
+	/* A model that starts a stream of its own (loaded from a fit): any
+	 * time may come next, and it learns with the nominal weight. */
+	qw_detector_counters_reset(d);
+	x[1] = 2.6;
+	assert_int_equal(qw_detector_add(d, 5, x, &res), 0);
+	assert_true(res.scored && res.learned);
+	assert_int_equal(qw_detector_counters(d)->rej_time, 0);
+	assert_int_equal(qw_detector_add(d, 4, x, &res), QW_ETIME);
 	qw_detector_free(d);
 }
 

@@ -180,6 +180,10 @@ static void loaded_groups(void **st)
 	/* the group counts its own readings; the model is the fit's */
 	assert_true(qw_detector_counters(d)->readings == 0);
 	assert_true(qw_detector_count(d) > 0);
+	/* a stream of its own: a time before the fit's last one is scored */
+	qwt_draw(f->rng, MD_P, f->A, NULL, f->z, x);
+	assert_int_equal(qw_detector_add(d, -5.0, x, &ra), 0);
+	assert_true(ra.scored);
 	/* a fixed model's steady limit is the one in force */
 	assert_true(qw_detector_steady_limit(d) == qw_detector_limit(d));
 	assert_true(meta.limit_factor == MD_FACTOR);

@@ -564,7 +564,11 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
 			d->cnt.rej_time++;
 			return QW_ERROR(QW_ETIME);
 		}
-		lam = det_lam(t - d->last_t, d->par.half_life);
+		/* After qw_detector_counters_reset no time is known: the
+		 * nominal step. */
+		lam = isfinite(d->last_t)
+			      ? det_lam(t - d->last_t, d->par.half_life)
+			      : d->lam;
 	}
 	if (nobs < d->par.p)
 		d->cnt.partial++;

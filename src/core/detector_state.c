@@ -53,6 +53,8 @@ void qw_detector_counters_reset(qw_detector *d)
 	memset(&d->cnt, 0, sizeof d->cnt);
 	qw_alarm_reset(&d->alarm);
 	d->alarm_run = 0;
+	d->last_t = -INFINITY; /* any time may come next */
+	qw_dyn_break(d->dyn);
 }
 
 int qw_detector_scale_model(qw_detector *d, double s)

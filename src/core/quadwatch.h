@@ -273,8 +273,10 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
  * Re-baselining a frozen group unfreezes it. */
 void qw_detector_freeze(qw_detector *d, int on);
 int qw_detector_frozen(const qw_detector *d);
-/* Zeroes the counters and the alarm state and keeps the learned model (a
- * model loaded from a fit starts its own count). */
+/* Zeroes the counters and the alarm state, forgets the time and the
+ * previous reading of the stream, and keeps the learned model: a model
+ * loaded from a fit starts a stream of its own (any time may come next;
+ * the first reading has no lag pair). */
 void qw_detector_counters_reset(qw_detector *d);
 /* Multiplies the learned covariance by s > 0 (a consistency factor for a
  * trimmed fit).  QW_EINVAL for s not finite and positive. */

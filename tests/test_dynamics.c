@@ -336,12 +336,66 @@ static void attribution_of_innovation(void **st)
 	plant_free(&s);
 }
 
+/* MEWMA on residuals that keep memory (an unwhitened VAR(1) plant): the
+ * chart learns its own covariance, so its statistic keeps a mean near p,
+ * where the textbook chart's wanders far wider; also in a fit, which
+ * never leaves warm-up. */
+static void mewma_learns_its_covariance(void **st)
+{
+	const size_t p = 3, n = 40000;
+	struct qw_params par;
+	qw_detector *d[2];
+	struct qw_result res;
+	struct plant s;
+	double x[3], sum[2] = {0, 0};
+	size_t k, i, late = 0;
+
+	(void)st;
+	for (i = 0; i < 2; i++) {
+		qw_params_default(&par, p);
+		par.rate = RATE_HZ;
+		par.mode = QW_MODE_MEWMA;
+		par.learn = QW_LEARN_ALL;
+		/* 0: a daemon's group; 1: a fit (no forgetting, no end of
+		 * warm-up) */
+		par.warmup = i == 0 ? 2000 : UINT64_MAX;
+		par.half_life = i == 0 ? 20000 : QW_HALF_LIFE_NONE;
+		d[i] = qw_detector_alloc(&par);
+		assert_non_null(d[i]);
+	}
+	plant_init(&s, p, 0.9, 0.05, 81);
+	for (k = 0; k < n; k++) {
+		qwt_var1_step(s.rng, &s.v, x);
+		for (i = 0; i < 2; i++) {
+			assert_int_equal(qw_detector_add(d[i],
+							 (double)k / RATE_HZ,
+							 x, &res), 0);
+			if (k >= n / 2)
+				sum[i] += res.q;
+		}
+		late += k >= n / 2;
+	}
+	print_message("# MEWMA on an unwhitened VAR(1) plant, p=3: mean "
+		      "statistic %.2f (daemon) and %.2f (fit), p = 3\n",
+		      sum[0] / (double)late, sum[1] / (double)late);
+	/* The textbook chart's mean here is about (1 + 2 sum_k (0.9 0.9)^k)
+	 * p = 9.5 p, near 28 (residual memory 0.9, EWMA memory 1 - rho =
+	 * 0.9): a learned covariance brings it back near p. */
+	for (i = 0; i < 2; i++) {
+		assert_true(sum[i] / (double)late < 1.5 * (double)p);
+		assert_true(sum[i] / (double)late > 0.5 * (double)p);
+		qw_detector_free(d[i]);
+	}
+	plant_free(&s);
+}
+
 int main(void)
 {
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(missing_teaches_nothing),
 		cmocka_unit_test(state_round_trip),
 		cmocka_unit_test(attribution_of_innovation),
+		cmocka_unit_test(mewma_learns_its_covariance),
 		cmocka_unit_test(var1_p4_1of1),
 		cmocka_unit_test(var1_p4_3of5),
 		cmocka_unit_test(var1_p8_2of4),

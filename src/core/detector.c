@@ -437,11 +437,15 @@ static void det_mewma(qw_detector *d, double k, struct qw_result *res)
 }
 
 /* Learns G from a reading the chart accepts, once the model has learned
- * half its warm-up (before that, z carries the model's own settling). */
+ * half its warm-up or QW_MEWMA_SETTLE readings, whichever is fewer
+ * (before that, z carries the model's own settling; a fit, which never
+ * leaves warm-up, learns G too). */
 static void det_mewma_learn(qw_detector *d, const struct qw_result *res)
 {
 	if (res->over || d->alarm.in_alarm || res->event == QW_EVENT_CLEAR ||
-	    2 * qw_ewcov_count(d->ew) < d->par.warmup)
+	    qw_ewcov_count(d->ew) <
+		    (d->par.warmup < QW_MEWMA_SETTLE ? d->par.warmup
+						      : QW_MEWMA_SETTLE) / 2)
 		return;
 	if (qw_ewcov_count(d->zew) == 0)
 		qw_ewcov_first(d->zew, d->z);

@@ -13,6 +13,9 @@
 /* Noise floor of the MEWMA state's own covariance G, as a share of z's
  * iid standard deviation sqrt(rho/(2-rho)): a numerical guard only. */
 #define QW_MEWMA_Z_FLOOR 1e-3
+/* Readings of the model's settling before G learns, at most (readings):
+ * at the default smoothing z forgets its start within ~100 readings. */
+#define QW_MEWMA_SETTLE 2000
 
 struct qw_detector {
 	struct qw_params par;      /* par.floor points at floor */

@@ -100,10 +100,10 @@ check: deps
 	@$(MAKE) --no-print-directory tests
 	@BUILD=$(BUILD) tests/run
 
+ASAN_SAN := -fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all
 check-asan: deps
-	@$(MAKE) --no-print-directory BUILD=build-asan OPT=-O1 \
-		SAN="-fsanitize=address,undefined -fno-omit-frame-pointer -fno-sanitize-recover=all" tests
-	@BUILD=build-asan QW_SANITIZED=1 ASAN_OPTIONS=detect_leaks=1 \
+	@$(MAKE) --no-print-directory BUILD=build-asan OPT=-O1 SAN="$(ASAN_SAN)" tests
+	@BUILD=build-asan QW_SANITIZED=1 QW_SAN_FLAGS="$(ASAN_SAN)" ASAN_OPTIONS=detect_leaks=1 \
 		UBSAN_OPTIONS=print_stacktrace=1:halt_on_error=1 tests/run
 
 # The end-to-end tests whose daemons run under valgrind (memcheck, leaks).

@@ -16,7 +16,16 @@ dir=$(mktemp -d)
 trap 'rm -rf "$dir"' EXIT
 fail() { echo "FAIL: $*"; exit 1; }
 dest="$dir/root"
-make -s BUILD="$BUILD" DESTDIR="$dest" install >"$dir/log" 2>&1 ||
+# make with the flags the build was made with, so that install never
+# rebuilds a sanitized tree (make check-asan) without them.
+mk() {
+	if [ -n "${QW_SANITIZED:-}" ]; then
+		make -s BUILD="$BUILD" OPT=-O1 SAN="$QW_SAN_FLAGS" "$@"
+	else
+		make -s BUILD="$BUILD" "$@"
+	fi
+}
+mk DESTDIR="$dest" install >"$dir/log" 2>&1 ||
 	{ cat "$dir/log"; fail "make install exited $?"; }
 
 p="$dest/usr/local"
@@ -72,13 +81,13 @@ grep -A1 'alarm raised' "$dir/embed.out" | grep -q '1\. flow_m3h' ||
 	fail "installed example: $(cat "$dir/embed.out")"
 unset PKG_CONFIG_PATH PKG_CONFIG_SYSROOT_DIR
 
-make -s BUILD="$BUILD" DESTDIR="$dest" uninstall >"$dir/log" 2>&1 ||
+mk DESTDIR="$dest" uninstall >"$dir/log" 2>&1 ||
 	{ cat "$dir/log"; fail "make uninstall exited $?"; }
 left=$(find "$dest" ! -type d)
 [ -z "$left" ] || fail "left after uninstall: $left"
 
 # Another PREFIX: the unit follows it and is otherwise unchanged.
-make -s BUILD="$BUILD" DESTDIR="$dest" PREFIX=/opt/qw install >"$dir/log" 2>&1 ||
+mk DESTDIR="$dest" PREFIX=/opt/qw install >"$dir/log" 2>&1 ||
 	{ cat "$dir/log"; fail "make install PREFIX=/opt/qw exited $?"; }
 unit="$dest/opt/qw/lib/systemd/system/quadwatch.service"
 grep -q '^ExecStartPre=/opt/qw/bin/quadwatch check -c /opt/qw/etc/quadwatch/quadwatch.ini$' \
@@ -91,7 +100,7 @@ sed -e 's|/opt/qw/bin/quadwatch|/usr/bin/quadwatch|g' \
 	cmp -s - conf/quadwatch.service || fail "unit changed beyond its paths"
 grep -q '^libdir=/opt/qw/lib$' "$dest/opt/qw/lib/pkgconfig/quadwatch.pc" ||
 	fail "pkg-config libdir under PREFIX=/opt/qw"
-make -s BUILD="$BUILD" DESTDIR="$dest" PREFIX=/opt/qw uninstall >/dev/null 2>&1
+mk DESTDIR="$dest" PREFIX=/opt/qw uninstall >/dev/null 2>&1
 left=$(find "$dest" ! -type d)
 [ -z "$left" ] || fail "left after uninstall PREFIX=/opt/qw: $left"
 echo "# install: $pages man pages render clean; embed builds via pkg-config"

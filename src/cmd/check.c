@@ -187,9 +187,7 @@ static void chk_params(const struct qw_group_conf *g)
 	chk_kv(2, "dynamics", "%s", dyn[par->dynamics <= QW_DYN_VAR1 ?
 					par->dynamics : 0]);
 	if (par->dynamics != QW_DYN_NONE)
-		chk_kv(2, "max_gap", "%.10g s%s",
-		       par->max_gap > 0 ? par->max_gap
-					: QW_GAP_INTERVALS / par->rate,
+		chk_kv(2, "max_gap", "%.10g s%s", qw_params_max_gap(par),
 		       par->max_gap > 0 ? "" : " (the default)");
 	chk_kv(2, "mode", "%s", par->mode == QW_MODE_MEWMA ? "mewma" : "plain");
 	if (par->mode == QW_MODE_MEWMA)

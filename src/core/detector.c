@@ -122,6 +122,11 @@ int qw_params_check(const struct qw_params *par)
 			      par->persist_m, &alpha);
 }
 
+double qw_params_max_gap(const struct qw_params *par)
+{
+	return par->max_gap > 0 ? par->max_gap : QW_GAP_INTERVALS / par->rate;
+}
+
 void qw_detector_free(qw_detector *d)
 {
 	if (d == NULL)
@@ -167,8 +172,7 @@ static double det_kappa(double alpha, size_t p, enum qw_learn learn)
 static int det_alloc_parts(qw_detector *d, const struct qw_params *par)
 {
 	size_t p = par->p, dim, i;
-	double gap = par->max_gap > 0 ? par->max_gap
-				      : QW_GAP_INTERVALS / par->rate;
+	double gap = qw_params_max_gap(par);
 
 	d->floor = calloc(p, sizeof *d->floor);
 	d->dyn = d->floor ? qw_dyn_alloc(par->dynamics, p, gap, d->floor)

@@ -219,6 +219,9 @@ struct qw_params {
 /* Defaults for everything but p (see detector.c for values and why). */
 void qw_params_default(struct qw_params *par, size_t p);
 int qw_params_check(const struct qw_params *par);
+/* The longest step of a lag pair in force: max_gap, or its default
+ * QW_GAP_INTERVALS / rate (seconds). */
+double qw_params_max_gap(const struct qw_params *par);
 
 struct qw_result {
 	double q;          /* squared Mahalanobis distance before learning */

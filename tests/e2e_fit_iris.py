@@ -3,9 +3,9 @@ sample that a Debian package ships: the first 50 rows of Fisher's iris
 data in python3-scipy's test files (scipy/spatial/tests/data/iris.txt;
 the setosa sample in the usual ordering), p = 4 measurements in cm.
 
-No textbook Hotelling example with printed statistics is recalled here
-reliably enough to quote, so the references are computed by numpy and
-scipy on this sample (Tracy, Young & Mason 1992; Montgomery, Introduction
+The worked textbook example with printed statistics is in
+e2e_fit_sweat.py; here the references are computed by numpy and scipy on
+this sample (Tracy, Young & Mason 1992; Montgomery, Introduction
 to Statistical Quality Control; the forms from memory):
   - `fit --no-trim` then `replay --scores` with model_use = fixed: each of
     the 50 readings' score against the fixed model equals the Phase I

@@ -55,10 +55,27 @@ static int limits(void)
 				printf("alpha %.17g %.17g %u %u %.17g\n", apd[a],
 				       rates[i], km[j][0], km[j][1], al);
 			}
+	/* p-values over the bulk and both tails, odd and even dof (the two
+	 * paths of pvalue.c), with and without a memo, at each nu */
 	for (d = 0; d < 7; d++)
-		printf("pvalue %.17g %u %.17g 1.1 %.17g\n", 1.7 * dofs[d],
-		       dofs[d], 812.5,
-		       qw_limit_pvalue(1.7 * dofs[d], dofs[d], 812.5, 1.1));
+		for (n = 0; n < 4; n++) {
+			struct qw_pvalue_memo memo = QW_PVALUE_MEMO_INIT;
+			const double mult[] = {1e-3, 0.3, 1, 1.7, 4, 12};
+
+			for (i = 0; i < 6; i++) {
+				double qv = mult[i] * dofs[d] + (i == 5 ? 60 : 0);
+				double pv = qw_limit_pvalue(qv, dofs[d], nus[n],
+							    1.1);
+
+				if (dofs[d] >= nus[n])
+					continue;
+				if (qw_limit_pvalue_memo(&memo, qv, dofs[d],
+							 nus[n], 1.1) != pv)
+					return 1; /* the memo changed a figure */
+				printf("pvalue %.17g %u %.17g 1.1 %.17g\n", qv,
+				       dofs[d], nus[n], pv);
+			}
+		}
 	return 0;
 }
 

@@ -13,6 +13,8 @@
 #include <string.h>
 
 #include <cmocka.h>
+#include <float.h>
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
 #include "quadwatch.h"
@@ -96,6 +98,50 @@ static void corrected_limit_shape(void **st)
 			1.1), 2.385e-5, 0) < 1e-8);
 }
 
+/* The per-reading p-value (pvalue.c: a finite sum for even dof, a
+ * continued fraction with a memo for odd) against GSL's F tail, a
+ * general-purpose library's figure, over the bulk and far into the tail;
+ * the memo never changes a figure, and the p-value falls as q grows (to
+ * a few ulp near 1, where it is a sum of terms). */
+static void pvalue_vs_gsl(void **st)
+{
+	const unsigned dofs[] = {1, 2, 3, 4, 5, 15, 16, 33, 64, 129};
+	const double nus[] = {20, 144.5, 2885.4, 4e4};
+	size_t d, n;
+
+	(void)st;
+	for (d = 0; d < sizeof dofs / sizeof dofs[0]; d++)
+		for (n = 0; n < sizeof nus / sizeof nus[0]; n++) {
+			struct qw_pvalue_memo memo = QW_PVALUE_MEMO_INIT;
+			double dof = dofs[d], nu = nus[n], d2 = nu - dof + 1;
+			double prev = 1.0, q;
+
+			if (!(nu > dof + QW_LIMIT_NU_MARGIN))
+				continue;
+			for (q = 0.01 * dof; q < 8.0 * dof + 200; q *= 1.07) {
+				double pv = qw_limit_pvalue(q, dofs[d], nu, 1.3);
+				double ref = gsl_cdf_fdist_Q(
+					q / 1.3 * d2 / (nu * dof), dof, d2);
+
+				if (ref < 1e-280)
+					break;
+				assert_true(qwt_reldiff(pv, ref, 0) < 1e-9);
+				assert_true(qw_limit_pvalue_memo(&memo, q, dofs[d],
+								 nu, 1.3) == pv);
+				/* near 1, sums of roundings: a few ulp */
+				assert_true(pv <= prev + 4 * DBL_EPSILON);
+				prev = pv;
+			}
+		}
+	assert_true(qw_limit_pvalue(0.0, 3, 50, 1.0) == 1.0);
+	assert_true(qw_limit_pvalue(-1.0, 3, 50, 1.0) == 1.0);
+	assert_true(qw_limit_pvalue(NAN, 3, 50, 1.0) == 1.0);
+	assert_true(qw_limit_pvalue(INFINITY, 3, 50, 1.0) == 0.0);
+	assert_true(qw_limit_pvalue(5.0, 3, 2.5, 1.0) == 1.0); /* nu too small */
+	assert_true(qwt_reldiff(qw_limit_pvalue(7.0, 3, INFINITY, 1.0),
+				gsl_cdf_chisq_Q(7.0, 3), 0) < 1e-15);
+}
+
 static void alpha_argument_errors(void **st)
 {
 	double a;
@@ -171,6 +217,7 @@ int main(void)
 		cmocka_unit_test(chisq_vs_nist_table),
 		cmocka_unit_test(nist_check_can_fail),
 		cmocka_unit_test(corrected_limit_shape),
+		cmocka_unit_test(pvalue_vs_gsl),
 		cmocka_unit_test(alpha_argument_errors),
 		cmocka_unit_test(alarm_vs_reference),
 		cmocka_unit_test(alarm_init_errors),

@@ -139,6 +139,7 @@ static int rp_group_alloc(struct replay *rp, struct replay_group *g,
 
 	g->conf = gc;
 	g->open_trace = -1;
+	g->pv_memo = (struct qw_pvalue_memo)QW_PVALUE_MEMO_INIT;
 	g->wanted = rp->o.group == NULL || strcmp(rp->o.group, gc->name) == 0;
 	if (g->wanted) {
 		rc = qw_model_detector(gc, &g->det, NULL, err, sizeof err);

@@ -110,6 +110,7 @@ struct replay_group {
 	size_t ring_n, ring_head;
 	struct replay_trace *traces; /* RP_TRACE_ALARMS */
 	long open_trace;       /* slot still collecting, or -1 */
+	struct qw_pvalue_memo pv_memo; /* per-reading p-values (pvalue.c) */
 };
 
 struct replay_opts {

@@ -121,7 +121,8 @@ static void rp_scores_row(struct replay *rp, const struct replay_scored *r,
 
 void qw_replay_scored(struct replay *rp, const struct replay_scored *r)
 {
-	double pv = qw_limit_pvalue(r->q, r->dof, r->nu, r->scale);
+	double pv = qw_limit_pvalue_memo(&r->g->pv_memo, r->q, r->dof, r->nu,
+					 r->scale);
 
 	rp_point(r->g, r, pv);
 	if (rp->scores != NULL)

@@ -126,17 +126,3 @@ double qw_limit_corrected(double alpha, unsigned dof, double nu, double scale)
 	d2 = nu - d + 1.0;
 	return scale * nu * d / d2 * limit_f_qinv(alpha, d, d2);
 }
-
-double qw_limit_pvalue(double q, unsigned dof, double nu, double scale)
-{
-	double d = (double)dof, d2;
-
-	if (!(q >= 0))
-		return 1.0;
-	if (isinf(nu))
-		return gsl_cdf_chisq_Q(q / scale, d);
-	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale))
-		return 1.0;
-	d2 = nu - d + 1.0;
-	return gsl_cdf_fdist_Q(q / scale * d2 / (nu * d), d, d2);
-}

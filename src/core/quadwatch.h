@@ -116,8 +116,19 @@ double qw_limit_chisq(double alpha, unsigned dof);
  * nu: scale * nu*dof/(nu-dof+1) * F^-1(1-alpha; dof, nu-dof+1).  +Inf when
  * nu <= dof - 1 + QW_LIMIT_NU_MARGIN (too little data to score). */
 double qw_limit_corrected(double alpha, unsigned dof, double nu, double scale);
-/* Upper-tail probability of q under the same corrected distribution. */
+/* Upper-tail probability of q under the same corrected distribution
+ * (pvalue.c). */
 double qw_limit_pvalue(double q, unsigned dof, double nu, double scale);
+/* The same, keeping ln B of the last (dof, nu) in memo for the next call
+ * (odd dof; even dof needs none): a replay's per-reading p-value.  A memo
+ * starts as QW_PVALUE_MEMO_INIT; the figure never depends on the memo. */
+struct qw_pvalue_memo {
+	unsigned dof; /* 0: empty */
+	double nu, lnbeta;
+};
+#define QW_PVALUE_MEMO_INIT {0u, 0.0, 0.0}
+double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,
+			    unsigned dof, double nu, double scale);
 #define QW_LIMIT_NU_MARGIN 1.0 /* readings of slack before F's 2nd dof > 1 */
 
 /* ---- alarm.c: persistence (k of last m) and hysteresis ---------------- */

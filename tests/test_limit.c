@@ -138,6 +138,8 @@ static void pvalue_vs_gsl(void **st)
 	assert_true(qw_limit_pvalue(NAN, 3, 50, 1.0) == 1.0);
 	assert_true(qw_limit_pvalue(INFINITY, 3, 50, 1.0) == 0.0);
 	assert_true(qw_limit_pvalue(5.0, 3, 2.5, 1.0) == 1.0); /* nu too small */
+	assert_true(qw_limit_pvalue(5.0, 3, 50, -1.0) == 1.0); /* bad scale */
+	assert_true(qw_limit_pvalue(5.0, 4, 50, 0.0) == 1.0);
 	assert_true(qwt_reldiff(qw_limit_pvalue(7.0, 3, INFINITY, 1.0),
 				gsl_cdf_chisq_Q(7.0, 3), 0) < 1e-15);
 }

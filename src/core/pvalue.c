@@ -84,7 +84,8 @@ double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,
 		return 1.0;
 	if (isinf(nu))
 		return gsl_cdf_chisq_Q(q / scale, d);
-	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale))
+	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale) ||
+	    !(scale > 0.0))
 		return 1.0;
 	d2 = nu - d + 1.0;
 	u = q / scale / nu;

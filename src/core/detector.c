@@ -155,6 +155,36 @@ static double det_lam(double steps, double half_life)
 	return -expm1(-M_LN2 * steps / half_life);
 }
 
+/* The EW weight of the next reading in time mode, dt seconds after the
+ * last learned one: det_lam, recomputed only when dt changes (regular
+ * sampling repeats it). */
+static double det_lam_dt(qw_detector *d, double dt)
+{
+	if (dt != d->lam_dt) {
+		d->lam_dt_w = det_lam(dt, d->par.half_life);
+		d->lam_dt = dt;
+	}
+	return d->lam_dt_w;
+}
+
+/* qw_ewcov_weight(ew, lam) = max(lam, 1/(n+1)), without its division once
+ * lam has won: 1/(n+1) only falls as n grows, so lam wins for every n at
+ * or above the count where it last won with the same lam. */
+static double det_weight(qw_detector *d, double lam)
+{
+	uint64_t n = qw_ewcov_count(d->ew);
+	double w;
+
+	if (lam == d->w_lam && n >= d->w_from)
+		return lam;
+	w = qw_ewcov_weight(d->ew, lam);
+	if (w == lam) {
+		d->w_lam = lam;
+		d->w_from = n;
+	}
+	return w;
+}
+
 /* kappa of the file top for a guard at the chi-square alpha point. */
 static double det_kappa(double alpha, size_t p, enum qw_learn learn)
 {
@@ -231,6 +261,8 @@ qw_detector *qw_detector_alloc(const struct qw_params *par)
 		       par->persist_m, &d->alpha);
 	d->lam = det_lam(par->time_based ? 1.0 / par->rate : 1.0,
 			 par->half_life);
+	d->lam_dt = NAN; /* no dt cached */
+	d->w_lam = NAN;
 	qw_alarm_init(&d->alarm, par->persist_k, par->persist_m, par->clear_n);
 	d->kappa = det_kappa(d->alpha, par->p, par->learn);
 	if (par->mode == QW_MODE_MEWMA) {
@@ -315,9 +347,18 @@ static double det_limit(qw_detector *d, unsigned dof, double nu,
  * rejection. */
 static int det_screen(qw_detector *d, const double *x, size_t *nobs)
 {
-	size_t i, m = 0;
+	size_t i, m = 0, p = d->par.p;
+	int odd = 0;
 
-	for (i = 0; i < d->par.p; i++) {
+	/* The common case in one branch-free (vectorisable) pass: x - x is
+	 * 0 for a finite value, NaN for Inf and NaN. */
+	for (i = 0; i < p; i++)
+		odd |= !(x[i] - x[i] == 0.0);
+	if (!odd) {
+		*nobs = p;
+		return 0;
+	}
+	for (i = 0; i < p; i++) {
 		if (isinf(x[i])) {
 			d->cnt.rej_nonfinite++;
 			return QW_ERROR(QW_ERANGE);
@@ -513,18 +554,19 @@ static void det_explain(qw_detector *d, const double *v,
 /* The first reading that fills the model vector: the mean, nothing to
  * score. */
 static void det_first(qw_detector *d, double t, const double *x,
-		      struct qw_result *res)
+		      const double *v, struct qw_result *res)
 {
-	qw_ewcov_first(d->ew, d->dyn->v);
+	qw_ewcov_first(d->ew, v);
 	qw_dyn_learn(d->dyn, x, 1.0);
 	d->last_t = t;
 	d->cnt.learned++;
 	res->learned = 1;
 }
 
-/* Alarm rule, attribution and learning for a scored reading. */
+/* Alarm rule, attribution and learning for a scored reading (x the
+ * reading, v its model vector). */
 static void det_decide(qw_detector *d, double t, const double *x,
-		       int complete, int learn, double w,
+		       const double *v, int complete, int learn, double w,
 		       struct qw_result *res, double k)
 {
 	double q = res->q, limit = res->limit;
@@ -540,7 +582,7 @@ static void det_decide(qw_detector *d, double t, const double *x,
 		d->cnt.alarms += res->event == QW_EVENT_RAISE;
 	}
 	if (res->over)
-		det_explain(d, d->dyn->v, res);
+		det_explain(d, v, res);
 	/* Under MEWMA the guard watches each reading at its plain limit. */
 	over = d->par.mode == QW_MODE_MEWMA ? warm && q > limit : res->over;
 	if (learn && complete)
@@ -557,7 +599,8 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
 {
 	size_t nobs = 0;
 	double w, lam = d->lam, k = 0.0;
-	int rc, complete, lag, learn;
+	const double *v = x;
+	int rc, complete, lag = 1, learn;
 
 	memset(res, 0, sizeof *res);
 	res->limit = INFINITY;
@@ -574,13 +617,18 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
 		}
 		/* After qw_detector_counters_reset no time is known: the
 		 * nominal step. */
-		lam = isfinite(d->last_t)
-			      ? det_lam(t - d->last_t, d->par.half_life)
-			      : d->lam;
+		lam = isfinite(d->last_t) ? det_lam_dt(d, t - d->last_t)
+					  : d->lam;
 	}
 	if (nobs < d->par.p)
 		d->cnt.partial++;
-	lag = qw_dyn_vector(d->dyn, t, x, &complete);
+	/* Without whitening the model vector is the reading itself. */
+	if (d->par.dynamics == QW_DYN_NONE) {
+		complete = nobs == d->par.p;
+	} else {
+		lag = qw_dyn_vector(d->dyn, t, x, &complete);
+		v = d->dyn->v;
+	}
 	if (!lag)
 		d->cnt.unlagged++;
 	learn = !d->frozen && !(flags & QW_ADD_NOLEARN);
@@ -588,20 +636,20 @@ int qw_detector_add_flags(qw_detector *d, double t, const double *x,
 		goto done; /* no innovation without the previous reading */
 	if (qw_ewcov_count(d->ew) == 0) {
 		if (complete && learn)
-			det_first(d, t, x, res);
+			det_first(d, t, x, v, res);
 		goto done;
 	}
 	/* MEWMA charts complete readings only: z holds over a partial one. */
 	if (!complete && d->par.mode == QW_MODE_MEWMA)
 		goto done;
-	w = qw_ewcov_weight(d->ew, lam);
-	if ((rc = det_score(d, d->dyn->v, complete, w, res, &k)) != 0) {
+	w = det_weight(d, lam);
+	if ((rc = det_score(d, v, complete, w, res, &k)) != 0) {
 		qw_dyn_break(d->dyn);
 		return rc;
 	}
 	res->scored = 1;
 	d->cnt.scored++;
-	det_decide(d, t, x, complete, learn, w, res, k);
+	det_decide(d, t, x, v, complete, learn, w, res, k);
 	d->alarm_run = d->alarm.in_alarm ? d->alarm_run + 1 : 0;
 	if (d->par.relearn_after > 0 && d->alarm_run >= d->par.relearn_after) {
 		qw_detector_rebaseline(d);

@@ -37,6 +37,11 @@ struct qw_detector {
 	qw_ewcov *zew;             /* MEWMA: EW covariance G of z; NULL in
 				      plain mode */
 	double last_t;             /* time of the last learned reading */
+	double lam_dt, lam_dt_w;   /* time mode: the last dt (s) det_lam was
+				      asked for, NaN for none, and its lam */
+	double w_lam;              /* lam that last won qw_ewcov_weight, NaN
+				      for none ... */
+	uint64_t w_from;           /* ... at this count (so at every later one) */
 	uint64_t alarm_run;        /* readings since the raise */
 	double kappa;              /* guard bias of Sigma (file top) */
 	double tshare;             /* share of the model learned guarded */

@@ -82,6 +82,9 @@ struct qw_ewcov {
 	double f;            /* share of F in the factor, [1/2, 1] */
 	size_t since_topup;  /* readings learned since the last top-up */
 	double w;            /* weight the pending factor was made with */
+	double cw, cc;       /* cc = sqrt(1 - cw) for the last weight cw
+				(NaN: none), so a steady weight costs no
+				square root per reading */
 	int pending;         /* Ln holds the update for r and w */
 	double V;            /* Var(mu)/Sigma */
 	double W1, W2;       /* Satterthwaite sums of S's term weights */
@@ -137,6 +140,7 @@ qw_ewcov *qw_ewcov_alloc(size_t p, const double *floor)
 	    !ew->r || !ew->y || !ew->u || !ew->sub || !ew->idx)
 		goto fail;
 	memcpy(ew->floor, floor, p * sizeof *floor);
+	ew->cw = NAN;
 	qw_ewcov_reset(ew);
 	return ew;
 fail:
@@ -224,6 +228,16 @@ void qw_ewcov_first(qw_ewcov *ew, const double *x)
 	ew->W2 = 0.0;
 }
 
+/* c = sqrt(1 - w), the sweep's scale, for weight w. */
+static double ewcov_scale_root(qw_ewcov *ew, double w)
+{
+	if (w != ew->cw) {
+		ew->cc = sqrt(1.0 - w);
+		ew->cw = w;
+	}
+	return ew->cc;
+}
+
 /* Installs the factor in Ln as the current one. */
 static void ewcov_swap(qw_ewcov *ew)
 {
@@ -248,7 +262,7 @@ int qw_ewcov_score(qw_ewcov *ew, const double *x, double w, double *q)
 		ew->u[i] = ew->r[i];
 	}
 	qq = qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
-		      sqrt(1.0 - w), 0);
+		      ewcov_scale_root(ew, w), 0);
 	/* q finite implies every y_j, g and so every new element finite. */
 	if (!isfinite(qq))
 		return QW_ERROR(QW_ERANGE);
@@ -304,7 +318,7 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 			ew->u[i] = ew->r[i];
 		}
 		qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, w,
-			 sqrt(1.0 - w), 0);
+			 ewcov_scale_root(ew, w), 0);
 	}
 	ewcov_swap(ew);
 	for (i = 0; i < p; i++)

@@ -52,6 +52,9 @@
  * the model (identical after a restore) and recomputed ~ln(nu)/step times
  * in a model's life; the rounding moves the limit by well under 1e-4. */
 #define QW_DET_NU_RTOL 1e-3
+/* IEEE 754 binary64: the exponent field, and one in its lowest bit. */
+#define DET_EXP_BITS UINT64_C(0x7ff0000000000000)
+#define DET_EXP_ONE (UINT64_C(1) << 52)
 /* Readings learned between full self-checks of the factor. */
 #define QW_DET_VERIFY_EVERY 1024
 /* Defaults (our choices, documented in quadwatch.ini(5)). */
@@ -348,13 +351,16 @@ static double det_limit(qw_detector *d, unsigned dof, double nu,
 static int det_screen(qw_detector *d, const double *x, size_t *nobs)
 {
 	size_t i, m = 0, p = d->par.p;
-	int odd = 0;
+	uint64_t odd = 0, bits;
 
-	/* The common case in one branch-free (vectorisable) pass: x - x is
-	 * 0 for a finite value, NaN for Inf and NaN. */
-	for (i = 0; i < p; i++)
-		odd |= !(x[i] - x[i] == 0.0);
-	if (!odd) {
+	/* The common case in one branch-free (vectorisable) pass over the
+	 * bits: the exponent field plus one carries into the sign bit only
+	 * when it is all ones (Inf or NaN). */
+	for (i = 0; i < p; i++) {
+		memcpy(&bits, x + i, sizeof bits);
+		odd |= (bits & DET_EXP_BITS) + DET_EXP_ONE;
+	}
+	if (!(odd >> 63)) {
 		*nobs = p;
 		return 0;
 	}

@@ -142,6 +142,7 @@ void qw_detector_free(qw_detector *d)
 	free(d->lim_f);
 	free(d->lim_nu);
 	free(d->lim_hi);
+	free(d->lim_chi);
 	free(d->z);
 	free(d->work);
 	free(d->vlag);
@@ -217,12 +218,14 @@ static int det_alloc_parts(qw_detector *d, const struct qw_params *par)
 	d->lim_f = calloc(p + 1, sizeof *d->lim_f);
 	d->lim_nu = calloc(p + 1, sizeof *d->lim_nu);
 	d->lim_hi = calloc(p + 1, sizeof *d->lim_hi);
+	d->lim_chi = calloc(p + 1, sizeof *d->lim_chi);
 	d->z = calloc(p, sizeof *d->z);
 	d->work = malloc(qw_explain_work_len(dim) * sizeof *d->work);
 	d->vlag = malloc(dim * sizeof *d->vlag);
 	d->mask = malloc(dim);
 	d->contrib = malloc(dim * sizeof *d->contrib);
-	if (!d->vfloor || !d->lim_f || !d->lim_nu || !d->lim_hi || !d->z ||
+	if (!d->vfloor || !d->lim_f || !d->lim_nu || !d->lim_hi ||
+	    !d->lim_chi || !d->z ||
 	    !d->work || !d->vlag || !d->mask || !d->contrib)
 		return QW_ERROR(QW_ENOMEM);
 	if (par->floor != NULL)
@@ -340,7 +343,10 @@ static double det_limit(qw_detector *d, unsigned dof, double nu,
 	}
 	*nu_out = nu; /* the p-value uses the limit's own nu */
 	if (d->lim_nu[dof] != nu) {
-		d->lim_f[dof] = qw_limit_corrected(d->alpha, dof, nu, 1.0);
+		if (!(d->lim_chi[dof] > 0)) /* once per dof: alpha is fixed */
+			d->lim_chi[dof] = qw_limit_chisq(d->alpha, dof);
+		d->lim_f[dof] = qw_limit_corrected_chi(d->alpha, dof, nu, 1.0,
+						       d->lim_chi[dof]);
 		d->lim_nu[dof] = nu;
 	}
 	return f * scale * d->lim_f[dof];

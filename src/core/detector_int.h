@@ -32,6 +32,8 @@ struct qw_detector {
 	double *lim_nu;            /* p+1: grid nu each was computed at */
 	double *lim_hi;            /* p+1: the next grid point: the cached
 				      value holds for nu in [lim_nu, lim_hi) */
+	double *lim_chi;           /* p+1: chi-square quantile of alpha by dof
+				      (0: not yet), the root's start */
 	double mewma_h;            /* MEWMA limit for the raise rate */
 	double *z;                 /* p: MEWMA state z, standardised units */
 	qw_ewcov *zew;             /* MEWMA: EW covariance G of z; NULL in

@@ -79,6 +79,17 @@ void qw_dyn_state_get(const struct qw_dyn *dy, unsigned char *b);
 int qw_dyn_state_check(const struct qw_dyn *dy, const unsigned char *b);
 int qw_dyn_state_set(struct qw_dyn *dy, const unsigned char *b);
 
+/* pvalue.c: Q_F(f; dof, d2), the F distribution's upper tail, at
+ * u = dof f / d2 (u >= 0; NaN or negative gives 1, +Inf 0). */
+double qw_pvalue_f(struct qw_pvalue_memo *memo, double u, unsigned dof,
+		   double d2);
+
+/* limit.c: qw_limit_corrected with the chi-square quantile of (alpha, dof)
+ * given (chi = qw_limit_chisq(alpha, dof)): the same figure, bit for bit,
+ * for a caller that keeps chi. */
+double qw_limit_corrected_chi(double alpha, unsigned dof, double nu,
+			      double scale, double chi);
+
 /* mewma.c: one MEWMA step, z' = (1-rho) z + rho ys y (p values; ys scales
  * y to unit variance); returns T2 = |z'|^2 (2-rho)/rho. */
 double qw_mewma_step(double *z, size_t p, double rho, const double *y,

@@ -24,7 +24,7 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_sf_gamma.h>
 
-#include "quadwatch.h"
+#include "internal.h"
 
 #define PV_CF_STEPS 1000     /* continued-fraction steps; far more than used */
 #define PV_CF_EPS 1e-16      /* relative change that ends the fraction */
@@ -77,10 +77,47 @@ static double pv_beta_even(double a, unsigned b, double lny, double y1)
 	return s < 1.0 ? s : 1.0; /* the sum of b roundings may pass 1 */
 }
 
+double qw_pvalue_f(struct qw_pvalue_memo *memo, double u, unsigned dof,
+		   double d2)
+{
+	double d = (double)dof, a, b, lny, lny1, y, y1, lnb, pre;
+
+	if (!(u >= 0))
+		return 1.0;
+	if (!isfinite(u))
+		return 0.0;
+	if (u == 0.0)
+		return 1.0;
+	a = 0.5 * d2;
+	b = 0.5 * d;
+	lny = -log1p(u);            /* ln y, y = 1/(1+u) */
+	if (a * lny < PV_EXP_MIN)
+		return gsl_cdf_fdist_Q(u * d2 / d, d, d2);
+	y1 = u / (1.0 + u);         /* 1 - y */
+	if ((dof & 1u) == 0)
+		return pv_beta_even(a, dof / 2u, lny, y1);
+	if (memo != NULL && memo->dof == dof && memo->d2 == d2) {
+		lnb = memo->lnbeta;
+	} else {
+		lnb = gsl_sf_lnbeta(a, b);
+		if (memo != NULL) {
+			memo->dof = dof;
+			memo->d2 = d2;
+			memo->lnbeta = lnb;
+		}
+	}
+	lny1 = log(u) + lny;        /* ln(1-y) */
+	y = exp(lny);
+	pre = exp(a * lny + b * lny1 - lnb);
+	if (y < (a + 1.0) / (a + b + 2.0))
+		return pre * pv_beta_cf(a, b, y) / a;
+	return 1.0 - pre * pv_beta_cf(b, a, y1) / b;
+}
+
 double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,
 			    unsigned dof, double nu, double scale)
 {
-	double d = (double)dof, d2, a, b, u, lny, lny1, y, y1, lnb, pre;
+	double d = (double)dof, u;
 
 	if (!(q >= 0))
 		return 1.0;
@@ -89,36 +126,10 @@ double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,
 	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale) ||
 	    !(scale > 0.0))
 		return 1.0;
-	d2 = nu - d + 1.0;
 	u = q / scale / nu;
-	if (!isfinite(u))
-		return isnan(u) ? 1.0 : 0.0;
-	a = 0.5 * d2;
-	b = 0.5 * d;
-	lny = -log1p(u);            /* ln y, y = 1/(1+u) */
-	if (u == 0.0)
+	if (isnan(u))
 		return 1.0;
-	if (a * lny < PV_EXP_MIN)
-		return gsl_cdf_fdist_Q(u * d2 / d, d, d2);
-	y1 = u / (1.0 + u);         /* 1 - y */
-	if ((dof & 1u) == 0)
-		return pv_beta_even(a, dof / 2u, lny, y1);
-	lny1 = log(u) + lny;        /* ln(1-y) */
-	y = exp(lny);
-	if (memo != NULL && memo->dof == dof && memo->nu == nu) {
-		lnb = memo->lnbeta;
-	} else {
-		lnb = gsl_sf_lnbeta(a, b);
-		if (memo != NULL) {
-			memo->dof = dof;
-			memo->nu = nu;
-			memo->lnbeta = lnb;
-		}
-	}
-	pre = exp(a * lny + b * lny1 - lnb);
-	if (y < (a + 1.0) / (a + b + 2.0))
-		return pre * pv_beta_cf(a, b, y) / a;
-	return 1.0 - pre * pv_beta_cf(b, a, y1) / b;
+	return qw_pvalue_f(memo, u, dof, nu - d + 1.0);
 }
 
 double qw_limit_pvalue(double q, unsigned dof, double nu, double scale)

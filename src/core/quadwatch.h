@@ -124,7 +124,7 @@ double qw_limit_pvalue(double q, unsigned dof, double nu, double scale);
  * starts as QW_PVALUE_MEMO_INIT; the figure never depends on the memo. */
 struct qw_pvalue_memo {
 	unsigned dof; /* 0: empty */
-	double nu, lnbeta;
+	double d2, lnbeta;
 };
 #define QW_PVALUE_MEMO_INIT {0u, 0.0, 0.0}
 double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,

@@ -12,7 +12,7 @@
  * log1p and one exp, no gamma function.  Odd d: the continued fraction
  * (A&S 26.5.8, evaluated by the modified Lentz method) on whichever of
  * I_y(a, b), 1 - I_{1-y}(b, a) converges, with ln B(a, b) kept in a memo
- * between calls of the same (d, nu): a replay scores millions of readings
+ * between calls of the same (d, d2): a replay scores millions of readings
  * against a handful of such pairs.  Cost against GSL's gsl_cdf_fdist_Q
  * (same figure) at nu = 2885, q about dof: even dof 55-110 ns against
  * 550-580 ns; odd 330-470 ns against 580-680 ns, the fraction's steps

@@ -119,9 +119,10 @@ double qw_limit_corrected(double alpha, unsigned dof, double nu, double scale);
 /* Upper-tail probability of q under the same corrected distribution
  * (pvalue.c). */
 double qw_limit_pvalue(double q, unsigned dof, double nu, double scale);
-/* The same, keeping ln B of the last (dof, nu - dof + 1) in memo for the next call
- * (odd dof; even dof needs none): a replay's per-reading p-value.  A memo
- * starts as QW_PVALUE_MEMO_INIT; the figure never depends on the memo. */
+/* The same, keeping ln B of the last (dof, nu - dof + 1) in memo for the
+ * next call (odd dof; even dof needs none): a replay's per-reading
+ * p-value.  A memo starts as QW_PVALUE_MEMO_INIT; the figure never
+ * depends on the memo. */
 struct qw_pvalue_memo {
 	unsigned dof; /* 0: empty */
 	double d2, lnbeta;

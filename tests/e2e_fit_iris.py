@@ -21,10 +21,7 @@ to Statistical Quality Control; the forms from memory):
     B^-1(1 - alpha; p/2, (n-p-1)/2) (scipy.stats.beta.isf) and how many
     of the 50 exceed it (a Phase I review would look at those).
 With --tamper the numpy reference is perturbed and the run must fail."""
-import csv
 import os
-import re
-import subprocess
 import sys
 
 import numpy as np
@@ -67,24 +64,9 @@ def config(path, extra=""):
 
 base = os.path.join(tmp, "base.ini")
 config(base)
-r = subprocess.run([q.QW, "fit", "-c", base, "--no-trim", "-q", "-o", tmp,
-                    data], capture_output=True, text=True, timeout=60)
-q.check(r.returncode == 0, "fit: %s" % r.stderr)
-alpha = float(re.search(r"alpha:\s+(\S+)", r.stdout).group(1))
-lim_fit = float(re.search(r"limit_gaussian:\s+(\S+)", r.stdout).group(1))
-used = int(re.search(r"used:\s+(\d+)", r.stdout).group(1))
+fit, rows = q.fit_fixed(tmp, base, "setosa", data, data)
+alpha, lim_fit, used = fit["alpha"], fit["limit_gaussian"], fit["used"]
 q.check(used == N, "used %d of %d" % (used, N))
-fixed = os.path.join(tmp, "fixed.ini")
-with open(base) as f:
-    text = f.read()
-with open(fixed, "w") as f:
-    f.write(text + "model = %s/setosa.qwmodel\nmodel_use = fixed\n" % tmp)
-scores = os.path.join(tmp, "scores.csv")
-r = subprocess.run([q.QW, "replay", "-c", fixed, "-q", "--scores", scores,
-                    data], capture_output=True, text=True, timeout=60)
-q.check(r.returncode == 0, "replay: %s" % r.stderr)
-with open(scores) as f:
-    rows = list(csv.DictReader(f))
 q.check(len(rows) == N, "%d score rows" % len(rows))
 
 xbar = x.mean(axis=0)

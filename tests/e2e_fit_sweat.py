@@ -31,10 +31,7 @@ critical value times (n+1)/(n-1) at the same alpha: the F quantile it
 implies is checked against the printed 2.44 (the printed 8.18 is the
 product of the rounded factors; exactly, 8.1726).
 With --tamper the printed T^2 is moved by 0.02 and the run must fail."""
-import csv
 import os
-import re
-import subprocess
 import sys
 
 import numpy as np
@@ -131,29 +128,13 @@ with open(base, "w") as f:
     f.write(q.ini(tmp, {"sweat": {
         "channels": CH, "rate": 1, "alarms_per_day": "%.17g" % apd,
         "warmup": 5, "floor": [1e-9] * P}}, [">tcp://127.0.0.1:5999"]))
-r = subprocess.run([q.QW, "fit", "-c", base, "--no-trim", "-q", "-o", tmp,
-                    data], capture_output=True, text=True, timeout=60)
-q.check(r.returncode == 0, "fit: %s" % r.stderr)
-alpha = float(re.search(r"alpha:\s+(\S+)", r.stdout).group(1))
-lim_fit = float(re.search(r"limit_gaussian:\s+(\S+)", r.stdout).group(1))
-used = int(re.search(r"used:\s+(\d+)", r.stdout).group(1))
-q.check(used == N, "used %d of %d" % (used, N))
-q.check(abs(alpha - ALPHA) <= 1e-12, "alpha %r" % alpha)
-
-fixed = os.path.join(tmp, "fixed.ini")
-with open(base) as f:
-    text = f.read()
-with open(fixed, "w") as f:
-    f.write(text + "model = %s/sweat.qwmodel\nmodel_use = fixed\n" % tmp)
 pts = probes()
 pdata = os.path.join(tmp, "probes.csv")
 write_csv(pdata, pts, 1700001000)
-scores = os.path.join(tmp, "scores.csv")
-r = subprocess.run([q.QW, "replay", "-c", fixed, "-q", "--scores", scores,
-                    pdata], capture_output=True, text=True, timeout=60)
-q.check(r.returncode == 0, "replay: %s" % r.stderr)
-with open(scores) as f:
-    rows = list(csv.DictReader(f))
+fit, rows = q.fit_fixed(tmp, base, "sweat", data, pdata)
+alpha, lim_fit, used = fit["alpha"], fit["limit_gaussian"], fit["used"]
+q.check(used == N, "used %d of %d" % (used, N))
+q.check(abs(alpha - ALPHA) <= 1e-12, "alpha %r" % alpha)
 q.check(len(rows) == len(pts), "%d score rows of %d" % (len(rows), len(pts)))
 s = np.array([float(x["score"]) for x in rows])
 

@@ -113,6 +113,36 @@ def _on_term(sig, frame):
 signal.signal(signal.SIGTERM, _on_term)
 
 
+def fit_fixed(tmp, base, group, data, probes):
+    """Phase I then Phase II: `quadwatch fit --no-trim` of the CSV data
+    with the config file base, then `replay --scores` of the CSV probes
+    against the fitted model frozen (model_use = fixed).  Returns the fit's
+    printed fields (alpha, limit_gaussian, used) and the score rows."""
+    import csv
+    import re
+    r = subprocess.run([QW, "fit", "-c", base, "--no-trim", "-q", "-o", tmp,
+                        data], capture_output=True, text=True, timeout=60)
+    check(r.returncode == 0, "fit: %s" % r.stderr)
+    fields = {
+        "alpha": float(re.search(r"alpha:\s+(\S+)", r.stdout).group(1)),
+        "limit_gaussian": float(re.search(r"limit_gaussian:\s+(\S+)",
+                                          r.stdout).group(1)),
+        "used": int(re.search(r"used:\s+(\d+)", r.stdout).group(1))}
+    fixed = os.path.join(tmp, "fixed.ini")
+    with open(base) as f:
+        text = f.read()
+    with open(fixed, "w") as f:
+        f.write(text + "model = %s/%s.qwmodel\nmodel_use = fixed\n"
+                % (tmp, group))
+    scores = os.path.join(tmp, "scores.csv")
+    r = subprocess.run([QW, "replay", "-c", fixed, "-q", "--scores", scores,
+                        probes], capture_output=True, text=True, timeout=60)
+    check(r.returncode == 0, "replay: %s" % r.stderr)
+    with open(scores) as f:
+        rows = list(csv.DictReader(f))
+    return fields, rows
+
+
 def skid_readings(n, seed, fault=None):
     """n readings of the skid, fixed seed.  fault = (start, end): readings
     in [start, end) have flow respond to load with the wrong sign: inside

@@ -126,9 +126,7 @@ double qw_limit_pvalue_memo(struct qw_pvalue_memo *memo, double q,
 	if (!(nu > d - 1.0 + QW_LIMIT_NU_MARGIN) || !isfinite(scale) ||
 	    !(scale > 0.0))
 		return 1.0;
-	u = q / scale / nu;
-	if (isnan(u))
-		return 1.0;
+	u = q / scale / nu; /* NaN: qw_pvalue_f gives 1 */
 	return qw_pvalue_f(memo, u, dof, nu - d + 1.0);
 }
 

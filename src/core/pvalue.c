@@ -31,6 +31,17 @@
 #define PV_TINY 1e-300       /* Lentz's guard against a zero denominator */
 #define PV_EXP_MIN (-700.0)  /* y^a below e^-700: GSL handles the underflow */
 
+/* One term t of Lentz's method: updates its c and d (each kept off zero)
+ * and returns the factor the fraction's value takes. */
+static double pv_lentz(double *c, double *d, double t)
+{
+	*d = 1.0 + t * *d;
+	*c = 1.0 + t / *c;
+	*d = fabs(*d) < PV_TINY ? 1.0 / PV_TINY : 1.0 / *d;
+	*c = fabs(*c) < PV_TINY ? PV_TINY : *c;
+	return *d * *c;
+}
+
 /* The continued fraction of I_x(a, b) without its prefactor (A&S 26.5.8):
  * converges quickly for x < (a+1)/(a+b+2). */
 static double pv_beta_cf(double a, double b, double x)
@@ -43,20 +54,12 @@ static double pv_beta_cf(double a, double b, double x)
 	d = 1.0 / d;
 	h = d;
 	for (m = 1; m <= PV_CF_STEPS; m++) {
-		double m2 = 2.0 * m, t, del;
+		double m2 = 2.0 * m, del;
 
-		t = m * (b - m) * x / ((a + m2 - 1.0) * (a + m2));
-		d = 1.0 + t * d;
-		c = 1.0 + t / c;
-		d = fabs(d) < PV_TINY ? 1.0 / PV_TINY : 1.0 / d;
-		c = fabs(c) < PV_TINY ? PV_TINY : c;
-		h *= d * c;
-		t = -(a + m) * (a + b + m) * x / ((a + m2) * (a + m2 + 1.0));
-		d = 1.0 + t * d;
-		c = 1.0 + t / c;
-		d = fabs(d) < PV_TINY ? 1.0 / PV_TINY : 1.0 / d;
-		c = fabs(c) < PV_TINY ? PV_TINY : c;
-		del = d * c;
+		h *= pv_lentz(&c, &d,
+			      m * (b - m) * x / ((a + m2 - 1.0) * (a + m2)));
+		del = pv_lentz(&c, &d, -(a + m) * (a + b + m) * x /
+					       ((a + m2) * (a + m2 + 1.0)));
 		h *= del;
 		if (fabs(del - 1.0) < PV_CF_EPS)
 			break;

@@ -157,12 +157,14 @@ static int rp_group_alloc(struct replay *rp, struct replay_group *g,
 	    g->top_count == NULL)
 		return QW_ERROR(QW_ENOMEM);
 	qw_labels_reset(&g->labels);
+	qw_digest_reset(&g->dg);
 	if (rp->o.report == NULL)
 		return 0;
 	g->ring_t = calloc(RP_TRACE_PRE, sizeof *g->ring_t);
 	g->ring_x = calloc(RP_TRACE_PRE * p, sizeof *g->ring_x);
 	g->traces = calloc(RP_TRACE_ALARMS, sizeof *g->traces);
-	if (g->ring_t == NULL || g->ring_x == NULL || g->traces == NULL)
+	if (g->ring_t == NULL || g->ring_x == NULL || g->traces == NULL ||
+	    qw_strip_alloc(&g->strip, RP_Q_FLOOR) != 0)
 		return QW_ERROR(QW_ENOMEM);
 	return 0;
 }
@@ -178,7 +180,8 @@ static void rp_teardown(struct replay *rp)
 		free(g->idx);
 		free(g->x);
 		free(g->top_count);
-		free(g->pts);
+		qw_digest_free(&g->dg);
+		qw_strip_free(&g->strip);
 		free(g->ring_t);
 		free(g->ring_x);
 		free(g->traces);

@@ -21,6 +21,7 @@
 
 #include "alert.h"
 #include "config.h"
+#include "digest.h"
 #include "fmt.h"
 #include "quadwatch.h"
 #include "summary.h"
@@ -62,18 +63,7 @@ extern const char *const qw_replay_cause_names[RP_NCAUSES];
 #define RP_JOBS_MAX 64        /* -j: most worker threads */
 #define RP_PROGRESS_EVERY 0.5 /* s between progress lines */
 #define RP_PROGRESS_CHECK 4096 /* readings between clock reads */
-
-/* One scored reading, kept for the statistics and the report. */
-struct replay_point {
-	double t;          /* s */
-	double q;          /* score */
-	double limit;      /* limit in force (Inf in warm-up) */
-	double pvalue;     /* qw_limit_pvalue (NaN when undefined) */
-	unsigned dof;      /* channels observed */
-	unsigned char over;     /* q > limit after warm-up */
-	unsigned char in_alarm; /* group in alarm after the reading */
-	unsigned char warm;     /* warm-up was over: alarms possible */
-};
+#define RP_Q_FLOOR 1e-3       /* smallest score drawn on the log axis */
 
 /* The traces of one alarm's top channels around its raise. */
 struct replay_trace {
@@ -100,9 +90,8 @@ struct replay_group {
 	uint64_t *top_count;   /* p: alarms where the channel ranked first */
 	struct qw_labels labels;
 	int has_labels;        /* some reading carried a label */
-	struct replay_point *pts; /* scored readings */
-	size_t npts, cap;
-	int pts_full;          /* memory ran out: later points not kept */
+	struct qw_digest dg;   /* the summary's figures of the eligible */
+	int dg_failed;         /* memory ran out (said once) */
 	double t_first, t_last;   /* s, of readings offered */
 	/* report only: the last RP_TRACE_PRE readings (ring), alarm traces */
 	double *ring_t;        /* RP_TRACE_PRE */
@@ -110,6 +99,7 @@ struct replay_group {
 	size_t ring_n, ring_head;
 	struct replay_trace *traces; /* RP_TRACE_ALARMS */
 	long open_trace;       /* slot still collecting, or -1 */
+	struct qw_strip strip; /* the score plot */
 	struct qw_pvalue_memo pv_memo; /* per-reading p-values (pvalue.c) */
 };
 
@@ -270,7 +260,10 @@ struct replay_stats {
 	double tune_alpha;       /* empirical alpha quantile of p-values */
 	double tune_apd;         /* alarms_per_day giving tune_alpha, approx */
 	size_t tune_n;           /* scores behind tune_limit */
+	double tune_limit_res;   /* 0: exact, else relative resolution */
+	double tune_alpha_res;   /* 0: exact, else relative resolution */
 	double ks, ks_crit;      /* KS distance of p-values from uniform */
+	double ks_res;           /* 0: exact, else absolute resolution */
 	size_t ks_n;
 	uint64_t rejected[RP_NCAUSES];
 	struct qw_label_metrics lm;

@@ -3,7 +3,8 @@
  * configured rate, the lag-1 autocorrelation of the scores and the
  * warnings about persistence on dependent readings, the channels that
  * drove the alarms, tuning help and a calibration figure, refusals by
- * cause, and the caution about autocorrelated data.  Numbers as in replay_out.c (same struct). */
+ * cause, and the caution about autocorrelated data.  Numbers as in
+ * replay_out.c (same struct). */
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -55,10 +56,19 @@ static void rp_h_tuning(FILE *f, const struct replay_group *g,
 			"the configured %.3g per day\n", st->tune_limit,
 			st->tune_alpha, st->tune_apd,
 			g->conf->params.alarms_per_day);
+	if (st->tune_limit_res > 0 || st->tune_alpha_res > 0)
+		fprintf(f, "  (tuning figures from a histogram, to %.2g%%: "
+			"alpha times the readings exceeds the %u kept "
+			"exactly)\n", 100 * fmax(st->tune_limit_res,
+						  st->tune_alpha_res),
+			QW_EXTREME_KEEP);
 	fprintf(f, "  calibration: KS distance of %zu p-values from uniform "
 		"%.4f (5%% critical value %.4f)%s\n", st->ks_n, st->ks,
 		st->ks_crit, st->ks > st->ks_crit
 		? ": p-values are not uniform" : "");
+	if (st->ks_res > 0)
+		fprintf(f, "  (KS distance from %u bins, to %.2g)\n",
+			QW_KS_BINS, st->ks_res);
 }
 
 /* Delivered alarms per day, lag-1 autocorrelation, warnings. */

@@ -15,15 +15,15 @@
  * reading; the lag-1 autocorrelation of the eligible scores in stream
  * order; with persist k > 1 the warnings of qw_summary_warn.
  *
- * Workload: once per replay; one selection and one radix sort (sort.h)
- * of at most the scored readings. */
+ * Workload: once per replay and group; the figures the digest keeps
+ * (digest.h): selections over its kept tails, one pass over its
+ * histograms. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "log.h"
 #include "replay.h"
-#include "sort.h"
 
 #define RP_ADVICE "whiten the readings (dynamics = var1 or dynamics = " \
 	"ar1 in the [group %s] section) or fit the model from a healthy " \
@@ -73,77 +73,43 @@ static void rp_rejected(const struct replay_group *g, struct replay_stats *st)
 }
 
 /* Delivered alarms per day, lag-1 autocorrelation of the eligible scores
- * (every dof, stream order; buf holds npts doubles) and the warnings. */
+ * (every dof, stream order) and the warnings. */
 static void rp_dependence(const struct replay_group *g,
-			  struct replay_stats *st, double *buf)
+			  struct replay_stats *st)
 {
 	const struct qw_params *par = &g->conf->params;
-	double t_lo = INFINITY, t_hi = -INFINITY;
-	size_t i, n = 0;
+	uint64_t n = g->dg.eligible;
 
-	for (i = 0; i < g->npts; i++) {
-		const struct replay_point *pt = &g->pts[i];
-
-		if (!pt->warm)
-			continue;
-		buf[n++] = pt->q;
-		/* min and max: time may go backwards when not time-based */
-		t_lo = fmin(t_lo, pt->t);
-		t_hi = fmax(t_hi, pt->t);
-	}
-	st->guard_s = n > 0 ? t_hi - t_lo : 0.0;
+	st->guard_s = n > 0 ? g->dg.t_hi - g->dg.t_lo : 0.0;
 	st->alarms_per_day = qw_summary_per_day(st->alarms, st->guard_s);
 	st->conf_apd = par->alarms_per_day;
-	st->lag1 = qw_summary_lag1(buf, n);
-	st->lag1_n = n;
-	st->warn = qw_summary_warn(par->persist_k, st->lag1, n, st->alarms,
-				   st->conf_apd * st->guard_s
+	st->lag1 = qw_lag1_get(&g->dg.lag1);
+	st->lag1_n = (size_t)n;
+	st->warn = qw_summary_warn(par->persist_k, st->lag1, (size_t)n,
+				   st->alarms, st->conf_apd * st->guard_s
 				   / QW_SECONDS_PER_DAY);
-	st->warn |= qw_summary_warn_pace(par->rate, n, st->guard_s);
+	st->warn |= qw_summary_warn_pace(par->rate, (size_t)n, st->guard_s);
 	rp_warnings(g, st);
 }
 
-/* Tuning and calibration from the kept points.  0 or QW_ENOMEM. */
-static int rp_tuning(const struct replay_group *g, struct replay_stats *st)
+/* Tuning and calibration from the digest (exact, or to the resolution
+ * it says). */
+static void rp_tuning(const struct replay_group *g, struct replay_stats *st)
 {
-	double *qf = malloc((g->npts + 1) * sizeof *qf);
-	double *pv = malloc((g->npts + 1) * sizeof *pv);
-	double *tmp = malloc((g->npts + 1) * sizeof *tmp);
-	size_t i, nq = 0, np = 0;
+	const struct qw_digest *dg = &g->dg;
 
-	if (qf == NULL || pv == NULL || tmp == NULL) {
-		free(qf);
-		free(pv);
-		free(tmp);
-		return QW_ERROR(QW_ENOMEM);
-	}
-	rp_dependence(g, st, qf);
-	for (i = 0; i < g->npts; i++) {
-		const struct replay_point *pt = &g->pts[i];
-
-		if (!pt->warm)
-			continue;
-		if (pt->dof == g->conf->p && isfinite(pt->q))
-			qf[nq++] = pt->q;
-		if (pt->pvalue >= 0.0 && pt->pvalue <= 1.0)
-			pv[np++] = pt->pvalue;
-	}
-	/* the same figures as qw_summary_quantile's comparison sort, in
-	 * O(n): the score quantile by selection, the p-values by a radix
-	 * sort (the KS distance needs them all in order) */
-	qw_sort_double(pv, tmp, np);
-	st->tune_n = nq;
-	st->tune_limit = qw_quantile_select(qf, nq, 1.0 - st->alpha);
-	st->tune_alpha = qw_summary_quantile_sorted(pv, np, st->alpha);
+	st->tune_n = (size_t)dg->score.n;
+	st->tune_limit = dg->failed ? NAN
+			 : qw_extreme_get(&dg->score, 1.0 - st->alpha,
+				       &st->tune_limit_res);
+	st->tune_alpha = dg->failed ? NAN
+			 : qw_extreme_get(&dg->pv, st->alpha,
+				       &st->tune_alpha_res);
 	st->tune_apd = g->conf->params.alarms_per_day * st->tune_alpha
 		       / st->alpha;
-	st->ks = qw_summary_ks_uniform(pv, np);
-	st->ks_crit = qw_summary_ks_crit05(np);
-	st->ks_n = np;
-	free(qf);
-	free(pv);
-	free(tmp);
-	return 0;
+	st->ks = qw_digest_ks(dg, &st->ks_res);
+	st->ks_n = (size_t)dg->pv.n;
+	st->ks_crit = qw_summary_ks_crit05(st->ks_n);
 }
 
 int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
@@ -151,7 +117,6 @@ int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
 {
 	const struct qw_counters *c = qw_detector_counters(g->det);
 	const struct qw_params *par = &g->conf->params;
-	size_t i;
 
 	(void)rp;
 	memset(st, 0, sizeof *st);
@@ -159,8 +124,7 @@ int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
 	st->scored = c->scored;
 	st->exceedances = c->exceedances;
 	st->alarms = c->alarms;
-	for (i = 0; i < g->npts; i++)
-		st->eligible += g->pts[i].warm;
+	st->eligible = g->dg.eligible;
 	st->span_s = c->readings > 0 ? g->t_last - g->t_first : 0.0;
 	st->days = (double)st->eligible / par->rate / QW_SECONDS_PER_DAY;
 	st->expected = par->alarms_per_day * st->days;
@@ -170,7 +134,9 @@ int qw_replay_stats(const struct replay *rp, const struct replay_group *g,
 	st->dof = (unsigned)g->conf->p;
 	rp_rejected(g, st);
 	qw_labels_metrics(&g->labels, &st->lm);
-	return rp_tuning(g, st);
+	rp_dependence(g, st);
+	rp_tuning(g, st);
+	return 0;
 }
 
 /* ---- JSON ---------------------------------------------------------------- */
@@ -231,7 +197,12 @@ static json_t *rp_json_group(const struct replay *rp,
 	/* at least 1/alpha scores: the quantile lies inside the data */
 	json_object_set_new(tune, "sufficient",
 			    json_boolean((double)st->tune_n * st->alpha >= 1));
+	json_object_set_new(tune, "limit_resolution",
+			    jnum(st->tune_limit_res));
+	json_object_set_new(tune, "alpha_resolution",
+			    jnum(st->tune_alpha_res));
 	json_object_set_new(tune, "ks", jnum(st->ks));
+	json_object_set_new(tune, "ks_resolution", jnum(st->ks_res));
 	json_object_set_new(tune, "ks_crit05", jnum(st->ks_crit));
 	jset_u(tune, "ks_n", st->ks_n);
 	json_object_set_new(o, "tuning", tune);
@@ -363,7 +334,8 @@ int qw_replay_json(const struct replay *rp)
 	json_object_set_new(o, "warnings", warn);
 	json_object_set_new(o, "groups", groups);
 	json_object_set(o, "events", rp->events);
-	if (rc == 0 && json_dumpf(o, stdout, JSON_INDENT(2) | JSON_REAL_PRECISION(17)) != 0)
+	if (rc == 0 && json_dumpf(o, stdout,
+				  JSON_INDENT(2) | JSON_REAL_PRECISION(17)) != 0)
 		rc = QW_ERROR(QW_EIO);
 	if (rc == 0)
 		putchar('\n');

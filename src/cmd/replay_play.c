@@ -4,14 +4,14 @@
  * qw_detector_add, then on a raise or clear the alert from
  * qw_verdict_fill, encoded by qw_alert_encode (the bytes the daemon would
  * publish) and kept for --json.  Around that it keeps what the summary
- * and report need: one struct replay_point per scored reading, the label
+ * and report need: the digest of the eligible readings (digest.h), the label
  * state machine, the count of alarms by top channel, the --scores row,
  * and (with --report) the traces of the top channels around the alarms
  * with the highest raise scores.
  *
- * Workload: per reading O(p) besides the detector, plus one p-value (a
- * GSL F tail, ~1 us); the point array grows by doubling (amortised O(1),
- * log2(n) reallocations in a whole replay). */
+ * Workload: per reading O(p) besides the detector, plus one p-value
+ * (pvalue.c, 0.05-0.5 us) and O(1) for the summary (digest.h, bounded
+ * memory). */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -56,36 +56,21 @@ static void rp_event(struct replay *rp, struct replay_group *g, double t,
 		rp->ev_keys[json_array_size(rp->events) - 1] = rp->key;
 }
 
+/* The summary's and the report's share of one scored reading. */
 static void rp_point(struct replay_group *g, const struct replay_scored *r,
 		     double pv)
 {
-	struct replay_point *pt;
-
-	if (g->npts == g->cap && !g->pts_full) {
-		size_t cap = g->cap ? 2 * g->cap : 4096;
-		void *np = realloc(g->pts, cap * sizeof *g->pts);
-
-		if (np == NULL) {
-			g->pts_full = 1;
-			qw_log(QW_LOG_ERROR, "group %s: out of memory: later "
-			       "scores not kept for the summary",
-			       g->conf->name);
-		} else {
-			g->pts = np;
-			g->cap = cap;
-		}
-	}
-	if (g->pts_full)
+	if (g->strip.run != NULL)
+		qw_strip_add(&g->strip, r->t, r->q, r->limit, r->in_alarm,
+			     r->warm);
+	if (!r->warm || g->dg_failed)
 		return;
-	pt = &g->pts[g->npts++];
-	pt->t = r->t;
-	pt->q = r->q;
-	pt->limit = r->limit;
-	pt->pvalue = pv;
-	pt->dof = r->dof;
-	pt->over = r->over;
-	pt->in_alarm = r->in_alarm;
-	pt->warm = r->warm;
+	if (qw_digest_add(&g->dg, r->t, r->q, pv, r->dof == g->conf->p)
+	    != 0) {
+		g->dg_failed = 1;
+		qw_log(QW_LOG_ERROR, "group %s: out of memory: no tuning "
+		       "figures", g->conf->name);
+	}
 }
 
 /* One --scores row, "%.6f,%s,%.10g,%.10g,%.6g,%d,%s\n" as printf would

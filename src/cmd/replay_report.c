@@ -22,11 +22,10 @@
 #include "replay_svg.h"
 
 #define RP_COLS 870        /* columns of the score plot: its width in px */
-#define RP_HIST_BINS 20    /* p-value histogram bins */
+#define RP_HIST_BINS QW_DIGEST_HIST /* p-value histogram bins */
 #define RP_SCORE_H 340.0   /* px: heights of the plots */
 #define RP_TRACE_H 280.0
 #define RP_HIST_H 260.0
-#define RP_Q_FLOOR 1e-3    /* smallest score drawn on the log axis */
 
 static const char *const rp_colors[] = {"#1f5fa8", "#d9730d", "#2a8a3e",
 					"#8e44ad", "#b03030"};
@@ -49,34 +48,20 @@ static void rp_tick_time(const void *ctx, double x, char *buf, size_t cap)
 	const struct replay_group *g = ctx;
 	double i = floor(x + 0.5);
 
-	if (i < 0 || i >= (double)g->npts)
+	if (i < 0 || i >= (double)g->strip.n)
 		snprintf(buf, cap, " ");
 	else
-		rp_utc(g->pts[(size_t)i].t, 0, buf, cap);
+		rp_utc(qw_strip_time(&g->strip, (uint64_t)i), 0, buf, cap);
 }
 
 /* Score range, log10 decades, over the readings after warm-up when
  * there are any (the first few scores of a young model are huge). */
 static void rp_score_range(const struct replay_group *g, struct rp_plot *pl)
 {
-	double lo = INFINITY, hi = 0;
-	size_t i, nwarm = 0;
+	int warm = g->strip.nwarm > 0;
+	double lo = g->strip.lo[warm], hi = g->strip.hi[warm];
+	uint64_t n = g->strip.n;
 
-	for (i = 0; i < g->npts; i++)
-		nwarm += g->pts[i].warm;
-	for (i = 0; i < g->npts; i++) {
-		double q = g->pts[i].q, l = g->pts[i].limit;
-
-		if (nwarm > 0 && !g->pts[i].warm)
-			continue;
-
-		if (isfinite(q) && q > RP_Q_FLOOR && q < lo)
-			lo = q;
-		if (isfinite(q) && q > hi)
-			hi = q;
-		if (isfinite(l) && l > hi)
-			hi = l;
-	}
 	if (!isfinite(lo))
 		lo = RP_Q_FLOOR;
 	if (!(hi > lo))
@@ -84,28 +69,24 @@ static void rp_score_range(const struct replay_group *g, struct rp_plot *pl)
 	pl->y0 = floor(log10(lo));
 	pl->y1 = ceil(log10(hi) + 0.05);
 	pl->x0 = 0;
-	pl->x1 = g->npts > 1 ? (double)(g->npts - 1) : 1.0;
+	pl->x1 = n > 1 ? (double)(n - 1) : 1.0;
 	pl->logy = 1;
 }
 
 /* Shaded alarm spans: runs of columns holding an in-alarm reading. */
-static void rp_spans(const struct replay_group *g, const struct rp_plot *pl)
+static void rp_spans(const struct rp_plot *pl, const int *alarm, uint64_t n)
 {
-	size_t c, i, start = 0;
+	size_t c, start = 0;
 	int open = 0;
 
 	for (c = 0; c <= RP_COLS; c++) {
-		int on = 0;
+		int on = c < RP_COLS && alarm[c];
 
-		if (c < RP_COLS)
-			for (i = c * g->npts / RP_COLS;
-			     i < (c + 1) * g->npts / RP_COLS && !on; i++)
-				on = g->pts[i].in_alarm;
 		if (on && !open)
 			start = c;
 		if (!on && open) {
-			double xa = rp_px(pl, (double)(start * g->npts / RP_COLS));
-			double xb = rp_px(pl, (double)(c * g->npts / RP_COLS));
+			double xa = rp_px(pl, (double)(start * n / RP_COLS));
+			double xb = rp_px(pl, (double)(c * n / RP_COLS));
 
 			fprintf(pl->f, "<rect x=\"%.1f\" y=\"%.1f\" width=\"%.1f\""
 				" height=\"%.1f\" fill=\"#f6c6bf\"/>\n", xa,
@@ -118,7 +99,7 @@ static void rp_spans(const struct replay_group *g, const struct rp_plot *pl)
 
 /* One min/max path per series: a vertical stroke per column. */
 static void rp_bands(const struct rp_plot *pl, const double *lo,
-		     const double *hi, size_t npts, const char *style)
+		     const double *hi, uint64_t npts, const char *style)
 {
 	size_t c;
 
@@ -150,33 +131,28 @@ static void rp_legend(FILE *f, double x, double y, const char *color,
 /* The score plot.  0 or QW_ENOMEM. */
 static int rp_score_plot(FILE *f, const struct replay_group *g)
 {
-	double *v = malloc((g->npts + 1) * sizeof *v);
+	const struct qw_strip *s = &g->strip;
 	double *lo = malloc(4 * RP_COLS * sizeof *lo);
+	int *alarm = malloc(RP_COLS * sizeof *alarm);
 	struct rp_plot pl = {.f = f};
 	char first[32], xl[96];
-	size_t i;
 
-	if (v == NULL || lo == NULL) {
-		free(v);
+	if (alarm == NULL || lo == NULL) {
+		free(alarm);
 		free(lo);
 		return QW_ERROR(QW_ENOMEM);
 	}
+	qw_strip_columns(s, RP_COLS, lo, lo + RP_COLS, lo + 2 * RP_COLS,
+			 lo + 3 * RP_COLS, alarm);
 	rp_score_range(g, &pl);
-	rp_utc(g->npts ? g->pts[0].t : NAN, 1, first, sizeof first);
+	rp_utc(s->n ? qw_strip_time(s, 0) : NAN, 1, first, sizeof first);
 	snprintf(xl, sizeof xl, "time (UTC), readings in order from %s", first);
 	rp_svg_begin(&pl, RP_SCORE_H, "score q against the limit, log scale");
-	rp_spans(g, &pl);
+	rp_spans(&pl, alarm, s->n);
 	rp_svg_axes(&pl, xl, "score q (log scale)", rp_tick_time, g);
-	for (i = 0; i < g->npts; i++)
-		v[i] = g->pts[i].limit;
-	qw_summary_minmax(v, g->npts, RP_COLS, lo + 2 * RP_COLS,
-			  lo + 3 * RP_COLS);
-	for (i = 0; i < g->npts; i++)
-		v[i] = g->pts[i].q;
-	qw_summary_minmax(v, g->npts, RP_COLS, lo, lo + RP_COLS);
-	rp_bands(&pl, lo, lo + RP_COLS, g->npts,
+	rp_bands(&pl, lo, lo + RP_COLS, s->n,
 		 "fill=\"none\" stroke=\"#1f5fa8\" stroke-width=\"1.2\"");
-	rp_bands(&pl, lo + 2 * RP_COLS, lo + 3 * RP_COLS, g->npts,
+	rp_bands(&pl, lo + 2 * RP_COLS, lo + 3 * RP_COLS, s->n,
 		 "fill=\"none\" stroke=\"#c0392b\" stroke-width=\"2\"");
 	rp_legend(f, pl.w - 330, 30, "#1f5fa8", "", "score q");
 	rp_legend(f, pl.w - 240, 30, "#c0392b", "", "limit");
@@ -185,7 +161,7 @@ static int rp_score_plot(FILE *f, const struct replay_group *g)
 		"\"sans-serif\" font-size=\"12\">in alarm</text>\n",
 		pl.w - 160, pl.w - 133);
 	rp_svg_end(&pl);
-	free(v);
+	free(alarm);
 	free(lo);
 	return 0;
 }
@@ -277,18 +253,10 @@ static void rp_trace_plot(FILE *f, const struct replay_group *g,
 static void rp_hist_plot(FILE *f, const struct replay_group *g)
 {
 	struct rp_plot pl = {.f = f};
-	uint64_t bin[RP_HIST_BINS] = {0}, n = 0, top = 1;
+	const uint64_t *bin = g->dg.hist;
+	uint64_t n = g->dg.pv.n, top = 1;
 	size_t i;
 
-	for (i = 0; i < g->npts; i++) {
-		double pv = g->pts[i].pvalue;
-
-		if (!g->pts[i].warm || !(pv >= 0 && pv <= 1))
-			continue;
-		bin[pv >= 1 ? RP_HIST_BINS - 1
-		    : (size_t)(pv * RP_HIST_BINS)]++;
-		n++;
-	}
 	for (i = 0; i < RP_HIST_BINS; i++)
 		if (bin[i] > top)
 			top = bin[i];

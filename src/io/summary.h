@@ -4,7 +4,9 @@
  * distance of p-values from uniform, the delivered alarm rate and the
  * lag-1 autocorrelation of the scores with the warnings they raise.
  * Definitions are those of quadwatch-replay(1), sections DEFINITIONS,
- * LABELS and WARNINGS. */
+ * LABELS and WARNINGS.  The figures over a whole array (quantiles, KS
+ * distance, min/max columns, lag-1) are the exact references the tests
+ * hold digest.h's bounded-memory forms to; replay itself uses those. */
 #ifndef QW_SUMMARY_H
 #define QW_SUMMARY_H
 

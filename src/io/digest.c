@@ -246,9 +246,17 @@ void qw_digest_free(struct qw_digest *d)
 	d->ks = NULL;
 }
 
-static size_t ks_bin(double pv)
+static uint32_t ks_bin(double pv)
 {
-	return pv >= 1.0 ? QW_KS_BINS - 1 : (size_t)(pv * QW_KS_BINS);
+	return pv >= 1.0 ? QW_KS_BINS - 1 : (uint32_t)(pv * QW_KS_BINS);
+}
+
+static void ks_count(uint64_t *ks, const uint32_t *wait, size_t n)
+{
+	size_t i;
+
+	for (i = 0; i < n; i++)
+		ks[wait[i]]++;
 }
 
 /* One p-value: the KS bins begin, from pv's keep (every p-value so far),
@@ -264,8 +272,13 @@ static int digest_pvalue(struct qw_digest *d, double pv)
 		for (i = 0; i < d->pv.nkeep; i++)
 			d->ks[ks_bin(d->pv.keep[i])]++;
 	}
-	if (d->ks != NULL)
-		d->ks[ks_bin(pv)]++;
+	if (d->ks != NULL) {
+		d->ks_wait[d->ks_nwait++] = ks_bin(pv);
+		if (d->ks_nwait == QW_KS_BATCH) {
+			ks_count(d->ks, d->ks_wait, QW_KS_BATCH);
+			d->ks_nwait = 0;
+		}
+	}
 	d->hist[pv >= 1.0 ? QW_DIGEST_HIST - 1
 		: (size_t)(pv * QW_DIGEST_HIST)]++;
 	return qw_extreme_add(&d->pv, pv);
@@ -291,7 +304,7 @@ int qw_digest_add(struct qw_digest *d, double t, double q, double pv,
 double qw_digest_ks(const struct qw_digest *d, double *res)
 {
 	double fn = (double)d->pv.n, dist = 0.0;
-	uint64_t below = 0;
+	uint64_t below = 0, *ks;
 	size_t j;
 
 	*res = 0.0;
@@ -310,6 +323,12 @@ double qw_digest_ks(const struct qw_digest *d, double *res)
 		free(v);
 		return dist;
 	}
+	/* the bins with the p-values still waiting, on a copy */
+	ks = malloc(QW_KS_BINS * sizeof *ks);
+	if (ks == NULL)
+		return NAN;
+	memcpy(ks, d->ks, QW_KS_BINS * sizeof *ks);
+	ks_count(ks, d->ks_wait, d->ks_nwait);
 	/* F_n just below edge j / B is below / n: the distance there */
 	for (j = 0; j <= QW_KS_BINS; j++) {
 		double gap = fabs((double)below / fn - (double)j / QW_KS_BINS);
@@ -317,8 +336,9 @@ double qw_digest_ks(const struct qw_digest *d, double *res)
 		if (gap > dist)
 			dist = gap;
 		if (j < QW_KS_BINS)
-			below += d->ks[j];
+			below += ks[j];
 	}
+	free(ks);
 	*res = 1.0 / QW_KS_BINS;
 	return dist;
 }

@@ -56,6 +56,7 @@ static const double edges[] = {
 static void test_fmt_edges(void **state)
 {
 	size_t i;
+	double pw;
 	int prec;
 
 	(void)state;
@@ -70,6 +71,17 @@ static void test_fmt_edges(void **state)
 		check_f6(-edges[i]);
 		check_f6(nextafter(edges[i], 0));
 		check_f6(nextafter(edges[i], INFINITY));
+	}
+	/* every digit count of %.6f's whole part, at its two ends, and the
+	 * digit splits of %g */
+	for (i = 0, pw = 1.0; i <= 16; i++, pw *= 10.0) {
+		check_f6(pw);
+		check_f6(pw - 1.0);
+		check_f6(pw + 0.25);
+		for (prec = 1; prec <= QW_FMT_G_PREC_MAX; prec++) {
+			check_g(pw - 1.0, prec);
+			check_g(pw + 1.0, prec);
+		}
 	}
 	check_g(INFINITY, 10);
 	check_g(-INFINITY, 10);

@@ -33,8 +33,11 @@
 #define FMT_F_DIGITS 6         /* decimals of qw_fmt_f6 */
 #define FMT_F_SCALE 1e6        /* 10^FMT_F_DIGITS */
 #define FMT_F_INT_MAX 4.5e15   /* |v| below 2^52: floor and fraction exact */
+#define FMT_F_WHOLE_MAX 16     /* digits of a whole part below 4.5e15 + 1 */
 #define FMT_MANT_BITS 52       /* binary64: stored significand bits */
 #define FMT_EXP_BIAS 1023      /* binary64: exponent bias */
+#define FMT_HALF_DIGITS 8      /* fmt_digits: the low digits split off */
+#define FMT_HALF_SCALE 100000000u /* 10^FMT_HALF_DIGITS */
 /* floor(e log10 2) = (e * 78913) >> 18 for |e| <= 1650 (78913 / 2^18 =
  * 0.3010292 from below; the identity of Ryu's log10Pow2, Adams 2018;
  * a guess one too high only sends the value to snprintf) */
@@ -44,6 +47,14 @@
 static const double fmt_pow10[FMT_POW_MAX + 1] = {
 	1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11,
 	1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+};
+
+/* 10^0 .. 10^16 as integers: the whole part's digit count in qw_fmt_f6 */
+static const uint64_t fmt_pow10_u[FMT_F_WHOLE_MAX + 1] = {
+	1ull, 10ull, 100ull, 1000ull, 10000ull, 100000ull, 1000000ull,
+	10000000ull, 100000000ull, 1000000000ull, 10000000000ull,
+	100000000000ull, 1000000000000ull, 10000000000000ull,
+	100000000000000ull, 1000000000000000ull, 10000000000000000ull,
 };
 
 /* a * 10^k for |k| <= FMT_POW_MAX, one rounding. */
@@ -64,15 +75,36 @@ static int fmt_round(double m, uint64_t *r)
 	return 1;
 }
 
-/* Writes the n decimal digits of r (leading zeros kept) to d. */
+/* "00" to "99": two digits per division (the divisions are the chain) */
+static const char fmt_pairs[200] =
+	"00010203040506070809101112131415161718192021222324252627282930313233"
+	"34353637383940414243444546474849505152535455565758596061626364656667"
+	"6869707172737475767778798081828384858687888990919293949596979899";
+
+/* Writes the n decimal digits of r < 10^n (leading zeros kept) to d.
+ * Above 10^8 the low eight digits split off, so that the two halves'
+ * chains of divisions by 100 overlap. */
 static void fmt_digits(char *d, uint64_t r, int n)
 {
+	uint32_t lo;
 	int i;
 
-	for (i = n - 1; i >= 0; i--) {
-		d[i] = (char)('0' + r % 10);
-		r /= 10;
+	if (n > FMT_HALF_DIGITS) {
+		lo = (uint32_t)(r % FMT_HALF_SCALE);
+		r /= FMT_HALF_SCALE;
+		for (i = FMT_HALF_DIGITS; i > 0; i -= 2) {
+			memcpy(d + n - FMT_HALF_DIGITS + i - 2,
+			       fmt_pairs + 2 * (lo % 100), 2);
+			lo /= 100;
+		}
+		n -= FMT_HALF_DIGITS;
 	}
+	for (; n >= 2; n -= 2) {
+		memcpy(d + n - 2, fmt_pairs + 2 * (r % 100), 2);
+		r /= 100;
+	}
+	if (n == 1)
+		d[0] = (char)('0' + r);
 }
 
 /* Lays out P digits d with decimal exponent x in %g style into buf at o. */
@@ -178,9 +210,8 @@ size_t qw_fmt_f6(char *buf, double v)
 {
 	double a = fabs(v), ip, m;
 	uint64_t r, whole;
-	char d[24];
 	size_t o = 0;
-	int n, i;
+	int n;
 
 	if (!(a < FMT_F_INT_MAX))
 		return fmt_slow_f6(buf, v);
@@ -195,13 +226,11 @@ size_t qw_fmt_f6(char *buf, double v)
 	}
 	if (signbit(v))
 		buf[o++] = '-';
-	n = 0;
-	do {
-		d[n++] = (char)('0' + whole % 10);
-		whole /= 10;
-	} while (whole > 0);
-	for (i = n - 1; i >= 0; i--)
-		buf[o++] = d[i];
+	n = 1;
+	while (n < FMT_F_WHOLE_MAX && whole >= fmt_pow10_u[n])
+		n++;
+	fmt_digits(buf + o, whole, n);
+	o += (size_t)n;
 	buf[o++] = '.';
 	fmt_digits(buf + o, r, FMT_F_DIGITS);
 	o += FMT_F_DIGITS;

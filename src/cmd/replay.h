@@ -101,6 +101,11 @@ struct replay_group {
 	long open_trace;       /* slot still collecting, or -1 */
 	struct qw_strip strip; /* the score plot */
 	struct qw_pvalue_memo pv_memo; /* per-reading p-values (pvalue.c) */
+	/* --scores: the text of the last limit written, for its bits (the
+	 * limit changes only with the effective size); lim_len 0: none */
+	uint64_t lim_bits;
+	size_t lim_len;
+	char lim_txt[QW_FMT_MAX];
 };
 
 struct replay_opts {

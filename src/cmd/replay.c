@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "cmd.h"
+#include "input.h"
 #include "log.h"
 #include "model.h"
 #include "num.h"
@@ -284,6 +285,25 @@ static uint64_t rp_input_bytes(const struct replay_opts *o)
 	return sum;
 }
 
+/* 1 when every input can be read by each -j worker in turn: regular
+ * files; else 0, said once (the groups then play on one reader, with the
+ * second thread on the p-values and rows: the same results). */
+static int rp_inputs_twice(const struct replay_opts *o)
+{
+	int i;
+
+	for (i = 0; i < o->ninputs; i++)
+		if (qw_input_once(o->inputs[i]) == 1) {
+			qw_log(QW_LOG_INFO, "-j %u: %s is not a regular file "
+			       "(it can be read only once): one thread reads "
+			       "it and plays every group", o->jobs,
+			       strcmp(o->inputs[i], "-") == 0 ? "standard input"
+			       : o->inputs[i]);
+			return 0;
+		}
+	return 1;
+}
+
 int qw_cmd_replay(int argc, char **argv)
 {
 	struct replay rp;
@@ -306,7 +326,8 @@ int qw_cmd_replay(int argc, char **argv)
 	rp.bytes_total = rp_input_bytes(&rp.o);
 	/* -j: several groups are shared out; one group gets a second
 	 * thread for its p-values and rows */
-	share = rc == 0 && rp.o.jobs > 1 && rp_wanted(&rp) > 1;
+	share = rc == 0 && rp.o.jobs > 1 && rp_wanted(&rp) > 1 &&
+		rp_inputs_twice(&rp.o);
 	if (share)
 		rc = qw_replay_jobs(&rp);
 	else if (rc == 0 && rp.o.jobs > 1 && qw_replay_tail_start(&rp) != 0)

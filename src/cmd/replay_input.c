@@ -19,6 +19,7 @@
 #include "capture.h"
 #include "cmd.h"
 #include "csvin.h"
+#include "input.h"
 #include "log.h"
 #include "replay.h"
 #include "wire.h"
@@ -248,13 +249,15 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	return 0;
 }
 
-static int rp_csv(struct replay *rp, const char *path)
+static int rp_csv(struct replay *rp, const struct qw_input *in)
 {
 	struct qw_csvin *c = NULL;
 	char err[QW_CSVIN_ERR_MAX];
+	const char *path = in->name;
 	/* malformed rows are logged by the first worker only */
-	int rc = qw_csvin_open(path, rp->wid == 0 ? NULL : rp_silent, NULL,
-			       &c, err, sizeof err);
+	int rc = qw_csvin_open_stream(in->fp, in->name, in->size,
+				      rp->wid == 0 ? NULL : rp_silent, NULL,
+				      &c, err, sizeof err);
 
 	if (rc != 0) {
 		rp_say(rp, "%s", err);
@@ -329,12 +332,15 @@ static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
 	}
 }
 
-static int rp_capture(struct replay *rp, const char *path)
+static int rp_capture(struct replay *rp, const struct qw_input *in)
 {
 	struct qw_capture_reader *r = NULL;
 	const struct qw_capture_rec *rec;
+	const char *path = in->name;
 	uint64_t n = 0;
-	int rc = qw_capture_reader_open(path, rp->cfg.max_frame, &r);
+	int rc = qw_capture_reader_open_stream(in->fp, in->regular ? in->size
+					       : QW_CAPTURE_SIZE_UNKNOWN,
+					       rp->cfg.max_frame, &r);
 
 	if (rc != 0) {
 		rp_say(rp, "%s: %s", path, qw_strerror(rc));
@@ -370,16 +376,19 @@ static int rp_capture(struct replay *rp, const char *path)
 
 int qw_replay_input(struct replay *rp, const char *path)
 {
-	int rc = strcmp(path, "-") == 0 ? 0 : qw_capture_probe(path);
+	struct qw_input in;
+	int rc = qw_input_open(path, &in);
 
 	rp->cur_name = path;
 	rp->cur_done = 0;
 	rp->cur_total = 0;
-	if (rc < 0) {
-		rp_say(rp, "%s: %s", path, strerror(errno));
+	if (rc != 0) {
+		rp_say(rp, "%s: %s", path, rc == QW_ENOMEM ? qw_strerror(rc)
+		       : strerror(errno));
 		return QW_EXIT_FAIL;
 	}
-	rc = rc == 1 ? rp_capture(rp, path) : rp_csv(rp, path);
+	rc = in.capture ? rp_capture(rp, &in) : rp_csv(rp, &in);
+	qw_input_close(&in);
 	rp->bytes_before += rp->cur_total;
 	return rc;
 }

@@ -212,7 +212,8 @@ uint64_t qw_capture_writer_records(const struct qw_capture_writer *w)
 struct qw_capture_reader {
 	FILE *fp;
 	int own_fp;              /* 1: fclose at close */
-	uint64_t size, off;      /* file size, bytes consumed */
+	uint64_t size, off;      /* file size (or QW_CAPTURE_SIZE_UNKNOWN),
+				    bytes consumed */
 	size_t max_payload;
 	unsigned part;           /* from the header */
 	uint64_t count;          /* good records */
@@ -359,6 +360,14 @@ int qw_capture_reader_next(struct qw_capture_reader *r,
 		return r->err;
 	if (r->off == r->size)
 		return 0;
+	if (r->size == QW_CAPTURE_SIZE_UNKNOWN) {
+		/* a stream ends where a record would begin */
+		int c = getc(r->fp);
+
+		if (c == EOF)
+			return ferror(r->fp) ? (r->err = QW_ERROR(QW_EIO)) : 0;
+		ungetc(c, r->fp);
+	}
 	r->err = capture_record(r);
 	if (r->err != 0)
 		return r->err;
@@ -381,7 +390,7 @@ void qw_capture_reader_progress(const struct qw_capture_reader *r,
 				uint64_t *done, uint64_t *total)
 {
 	*done = r->off;
-	*total = r->size;
+	*total = r->size == QW_CAPTURE_SIZE_UNKNOWN ? 0 : r->size;
 }
 
 void qw_capture_reader_close(struct qw_capture_reader *r)

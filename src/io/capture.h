@@ -89,7 +89,10 @@ struct qw_capture_rec {
  * or nonzero flags), QW_ETRUNC (shorter than the header), QW_EVERSION. */
 int qw_capture_reader_open(const char *path, size_t max_payload,
 			   struct qw_capture_reader **out);
-/* The same over a stream of size bytes (not closed by the reader). */
+/* The same over a stream of size bytes (not closed by the reader), or of
+ * QW_CAPTURE_SIZE_UNKNOWN (a pipe): its end is then the end of the
+ * stream where a record would begin, and inside a record QW_ETRUNC. */
+#define QW_CAPTURE_SIZE_UNKNOWN UINT64_MAX
 int qw_capture_reader_open_stream(FILE *fp, uint64_t size,
 				  size_t max_payload,
 				  struct qw_capture_reader **out);
@@ -102,6 +105,7 @@ int qw_capture_reader_next(struct qw_capture_reader *r,
 uint64_t qw_capture_reader_count(const struct qw_capture_reader *r);
 /* The header's part number. */
 unsigned qw_capture_reader_part(const struct qw_capture_reader *r);
+/* Bytes consumed and the stream's size (0 when unknown). */
 void qw_capture_reader_progress(const struct qw_capture_reader *r,
 				uint64_t *done, uint64_t *total);
 void qw_capture_reader_close(struct qw_capture_reader *r);

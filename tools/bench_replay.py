@@ -12,7 +12,12 @@ Groups: --groups groups of p = 16 behind one daemon, readings spread
 round-robin over all of them (binary batches), beside the same count to a
 single group: readings/s through the daemon and its resident memory, and
 the resident memory again after a second, equal stream (flat = no growth
-per reading).  No verdicts: numbers only."""
+per reading).
+
+Long: the peak resident memory of a replay of 10^6 readings and of --long
+(10^7 by default; BENCH_LONG=1e8 from make bench), fed as a capture
+through a pipe: flat = the summary does not grow with the stream.  No
+verdicts: numbers only."""
 import argparse
 import os
 import statistics
@@ -125,6 +130,54 @@ def bench_replay(tmp, n, runs):
             print("%-8s %-8s %10.3f %14.0f %10.1f" % (
                 name, "yes" if sc else "no", s, n / s, mb / s))
     print("(load after: %s)" % load())
+
+
+def stream_capture(out, topic, n, p, seed):
+    """Writes a capture of n readings to the binary stream out, made and
+    sent a million at a time (the stream never sits in memory whole)."""
+    rng = np.random.default_rng(seed)
+    mix = rng.normal(size=(p, p)) * 0.3 + np.eye(p)
+    level = rng.uniform(5, 500, size=p)
+    tb = topic.encode()
+    out.write(b"QWCAP1" + struct.pack("<HII", 1, 0, 0))
+    for s in range(0, n, 1000000):
+        m = min(1000000, n - s)
+        x = rng.normal(size=(m, p)) @ mix.T + level
+        t = T0 + DT * np.arange(s, s + m)
+        for i in range(0, m, BATCH):
+            pay = binary_frame(p, t[i:i + BATCH], x[i:i + BATCH], s + i)
+            out.write(struct.pack("<dH", t[i], len(tb)) + tb)
+            out.write(struct.pack("<I", len(pay)) + pay)
+
+
+def long_run(cfg, n):
+    """Peak resident kB of a replay of n readings fed through a pipe
+    (summary, tuning figures and all), and its wall seconds."""
+    cmd = ["/usr/bin/time", "-f", "%M", QW, "replay", "-c", cfg, "--json",
+           "-q", "-"]
+    t0 = time.monotonic()
+    pr = subprocess.Popen(cmd, stdin=subprocess.PIPE,
+                          stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    stream_capture(pr.stdin, "g16", n, P, 5147)
+    pr.stdin.close()
+    err = pr.stderr.read().decode()
+    if pr.wait() != 0:
+        sys.exit("long replay failed: %s" % err)
+    return int(err.split()[-1]), time.monotonic() - t0
+
+
+def bench_long(tmp, counts):
+    cfg = os.path.join(tmp, "r.ini")
+    with open(cfg, "w") as f:
+        f.write(group_ini("g16", P))
+    print("== replay memory over a long stream: p = %d, a capture through "
+          "a pipe (made as it is read), load %s" % (P, load()))
+    print("%12s %14s %10s" % ("readings", "peak RSS kB", "wall s"))
+    for n in counts:
+        kb, secs = long_run(cfg, n)
+        print("%12d %14d %10.1f" % (n, kb, secs))
+    print("(the wall time includes making the stream in numpy on the "
+          "other core)")
 
 
 def channel_list(p):
@@ -276,12 +329,17 @@ def main():
     ap.add_argument("--runs", type=int, default=3)
     ap.add_argument("--groups", type=int, default=1000)
     ap.add_argument("--rounds", type=int, default=4)
-    ap.add_argument("--only", choices=("replay", "groups"))
+    ap.add_argument("--long", type=float, default=1e7,
+                    help="readings of the long-stream memory run")
+    ap.add_argument("--only", choices=("replay", "long", "groups"))
     a = ap.parse_args()
     tmp = tempfile.mkdtemp(prefix="qwbench.")
     try:
         if a.only in (None, "replay"):
             bench_replay(tmp, a.readings, a.runs)
+        if a.only in (None, "long"):
+            print()
+            bench_long(tmp, sorted({10 ** 6, int(a.long)}))
         if a.only in (None, "groups"):
             print()
             bench_groups(tmp, a.groups, a.readings // 2, a.rounds)

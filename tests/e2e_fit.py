@@ -15,7 +15,6 @@ through model = PATH, model_use = fixed | warm.  Checked:
 import json
 import os
 import re
-import struct
 import subprocess
 
 import numpy as np
@@ -101,11 +100,9 @@ cap = os.path.join(tmp, "healthy.qwcap")
 ct, cx = t_readings(N_FIT, 41, bad)
 cx = np.round(cx, 6)
 with open(cap, "wb") as fh:
-    fh.write(struct.pack("<6sHII", b"QWCAP1", 1, 0, 0))
-    for i in range(0, N_FIT, 64):
-        pl = q.binary(ct[i:i + 64], cx[i:i + 64], i)
-        fh.write(struct.pack("<dH", ct[i], 4) + b"skid" +
-                 struct.pack("<I", len(pl)) + pl)
+    fh.write(q.capture_bytes((ct[i], "skid", q.binary(ct[i:i + 64],
+                                                      cx[i:i + 64], i))
+                             for i in range(0, N_FIT, 64)))
 cmodels = os.path.join(tmp, "cmodels")
 os.mkdir(cmodels)
 r = run("fit", "-c", base, "-q", "-o", cmodels, cap)

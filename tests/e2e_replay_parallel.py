@@ -13,7 +13,6 @@ thread takes its p-values and rows); and a file that fails must fail
 alike, with one message.  A deliberately different run (one reading fewer) must differ,
 so the comparison can fail."""
 import os
-import struct
 import subprocess
 
 import qwtest as q
@@ -23,16 +22,9 @@ tmp = q.tmpdir()
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), ".."))
 demo = os.path.join(ROOT, "conf", "demo.ini")
 
-# the demo plant's groups plus the skid and a tower group for the capture
-with open(demo) as f:
-    base = f.read()
-ini = os.path.join(tmp, "p.ini")
-with open(ini, "w") as f:
-    f.write(base)
-    f.write("\n" + q.ini(tmp, {"skid": q.skid_group(warmup=100),
-                               "skid2": q.skid_group(warmup=150,
-                                                     half_life=500)},
-                        [">tcp://127.0.0.1:5999"]).split("\n\n", 1)[1])
+# the demo plant's groups plus two skid groups for the capture
+ini = q.demo_ini(tmp, {"skid": q.skid_group(warmup=100),
+                       "skid2": q.skid_group(warmup=150, half_life=500)})
 
 plant = os.path.join(tmp, "plant.csv")
 r = subprocess.run([q.QW, "sim", "-c", demo, "-o", plant, "--count",
@@ -53,19 +45,16 @@ with open(plant, "w") as f:
 cap = os.path.join(tmp, "c.qwc")
 t1, x1 = q.skid_readings(6000, seed=11, fault=(3000, 3100))
 t2, x2 = q.skid_readings(6000, seed=12, fault=(4000, 4060))
+recs = []
+for a in range(0, 6000, 50):
+    recs.append((t1[a], "skid", q.binary(t1[a:a + 50], x1[a:a + 50], a)))
+    recs.append((t2[a], "skid2", q.binary(t2[a:a + 50], x2[a:a + 50], a)))
+    if a % 1000 == 0:
+        recs.append((t2[a], "nobody", q.binary(t2[a:a + 2], x2[a:a + 2], a)))
+        recs.append((t2[a], "skid2", q.binary(t2[a:a + 2], x2[a:a + 2, :3],
+                                              a)))
 with open(cap, "wb") as f:
-    f.write(b"QWCAP1" + struct.pack("<HII", 1, 0, 0))
-
-    def rec(topic, payload, when):
-        tb = topic.encode()
-        f.write(struct.pack("<dH", when, len(tb)) + tb)
-        f.write(struct.pack("<I", len(payload)) + payload)
-    for a in range(0, 6000, 50):
-        rec("skid", q.binary(t1[a:a + 50], x1[a:a + 50], a), t1[a])
-        rec("skid2", q.binary(t2[a:a + 50], x2[a:a + 50], a), t2[a])
-        if a % 1000 == 0:
-            rec("nobody", q.binary(t2[a:a + 2], x2[a:a + 2], a), t2[a])
-            rec("skid2", q.binary(t2[a:a + 2], x2[a:a + 2, :3], a), t2[a])
+    f.write(q.capture_bytes(recs))
 
 more = os.path.join(tmp, "more.csv")
 t3, x3 = q.skid_readings(3000, seed=13, fault=(2000, 2050))

@@ -14,7 +14,6 @@ a capture are CSV.  The comparisons can fail: a stream that loses its
 first bytes (the bug this guards against) fails the CSV header, which is
 checked by replaying a copy with its first six bytes dropped."""
 import os
-import struct
 import subprocess
 import threading
 
@@ -25,14 +24,8 @@ tmp = q.tmpdir()
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), ".."))
 demo = os.path.join(ROOT, "conf", "demo.ini")
 
-with open(demo) as f:
-    base = f.read()
-ini = os.path.join(tmp, "s.ini")
-with open(ini, "w") as f:
-    f.write(base)
-    f.write("\n" + q.ini(tmp, {"skid": q.skid_group(warmup=100),
-                               "skid2": q.skid_group(warmup=150)},
-                        [">tcp://127.0.0.1:5999"]).split("\n\n", 1)[1])
+ini = q.demo_ini(tmp, {"skid": q.skid_group(warmup=100),
+                       "skid2": q.skid_group(warmup=150)})
 
 plant = os.path.join(tmp, "plant.csv")
 r = subprocess.run([q.QW, "sim", "-c", demo, "-o", plant, "--count",
@@ -43,16 +36,12 @@ q.check(r.returncode == 0, "sim: %s" % r.stderr)
 cap = os.path.join(tmp, "c.qwc")
 t1, x1 = q.skid_readings(4000, seed=21, fault=(2000, 2080))
 t2, x2 = q.skid_readings(4000, seed=22)
+cap_bytes = q.capture_bytes(
+    (t[a], topic, q.binary(t[a:a + 50], x[a:a + 50], a))
+    for a in range(0, 4000, 50)
+    for topic, t, x in (("skid", t1, x1), ("skid2", t2, x2)))
 with open(cap, "wb") as f:
-    f.write(b"QWCAP1" + struct.pack("<HII", 1, 0, 0))
-    for a in range(0, 4000, 50):
-        for topic, t, x in (("skid", t1, x1), ("skid2", t2, x2)):
-            pay = q.binary(t[a:a + 50], x[a:a + 50], a)
-            tb = topic.encode()
-            f.write(struct.pack("<dH", t[a], len(tb)) + tb)
-            f.write(struct.pack("<I", len(pay)) + pay)
-with open(cap, "rb") as f:
-    cap_bytes = f.read()
+    f.write(cap_bytes)
 with open(plant, "rb") as f:
     plant_bytes = f.read()
 

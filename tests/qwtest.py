@@ -228,6 +228,30 @@ def binary(t, x, seq):
     return b"".join(out)
 
 
+def capture_bytes(records):
+    """A capture file's bytes (src/io/capture.h): the header, then each
+    (time, topic, payload) record."""
+    out = [struct.pack("<6sHII", b"QWCAP1", 1, 0, 0)]
+    for when, topic, payload in records:
+        tb = topic.encode()
+        out.append(struct.pack("<dH", when, len(tb)) + tb)
+        out.append(struct.pack("<I", len(payload)) + payload)
+    return b"".join(out)
+
+
+def demo_ini(tmp, groups, name="demo_plus.ini"):
+    """conf/demo.ini with groups added ({name: {key: value}}, as for ini()),
+    written under tmp; its path."""
+    with open(os.path.join(ROOT, "conf", "demo.ini")) as f:
+        base = f.read()
+    path = os.path.join(tmp, name)
+    with open(path, "w") as f:
+        f.write(base)
+        f.write("\n" + ini(tmp, groups, [">tcp://127.0.0.1:5999"])
+                .split("\n\n", 1)[1])
+    return path
+
+
 def text(t, xi):
     return (repr(float(t)) + "," + ",".join(repr(float(v)) for v in xi)).encode()
 

@@ -228,13 +228,15 @@ static int t_free_fd(void)
 static void test_allocation_failures(void **state)
 {
 	char path[] = "/tmp/qw-input-XXXXXX";
-	unsigned char *b = t_bytes("time,x\n", 7, 5000);
-	int fd = mkstemp(path), pipe_in, low;
+	unsigned char *b;
+	int fd, pipe_in, low;
 	long k, n[2] = {0, 0};
 
 	(void)state;
 	if (!QWA_ACTIVE)
 		skip();
+	b = t_bytes("time,x\n", 7, 5000);
+	fd = mkstemp(path);
 	assert_true(fd >= 0);
 	assert_int_equal(write(fd, b, 5000), 5000);
 	close(fd);

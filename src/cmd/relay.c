@@ -43,6 +43,8 @@
 			    stats from many daemons */
 #define RELAY_FRONT_MAX 64      /* FRONTEND endpoints: daemons per relay */
 #define RELAY_ZAP_TICK_MS 250   /* ms: longest ZAP wait, bounds the stop */
+#define RELAY_PROXY_TICK_MS 250 /* ms: longest proxy poll, bounds the stop
+				   when the signal came mid-forward */
 #define RELAY_ZAP_LOG_EVERY 10.0 /* s between refused-subscriber lines */
 
 static volatile sig_atomic_t relay_stop;
@@ -159,7 +161,7 @@ static const char *relay_check(const struct relay_opts *o)
 	return NULL;
 }
 
-/* No SA_RESTART: a signal makes zmq_proxy return EINTR. */
+/* No SA_RESTART: a signal interrupts the proxy's poll at once. */
 static int relay_signals(void)
 {
 	struct sigaction sa;
@@ -376,11 +378,11 @@ int qw_cmd_relay(int argc, char **argv)
 	rc = relay_front(bus, &o, &front);
 	if (rc == 0)
 		rc = relay_back(bus, &o, &z, &allowed, &th, &started, &back);
-	while (rc == 0 && !relay_stop)
-		if (qw_bus_proxy(front, back) < 0) {
-			proxy_failed = 1;
-			rc = QW_EXIT_FAIL;
-		}
+	if (rc == 0 && qw_bus_proxy(front, back, &relay_stop,
+				    RELAY_PROXY_TICK_MS) < 0) {
+		proxy_failed = 1;
+		rc = QW_EXIT_FAIL;
+	}
 	if (started) {
 		atomic_store(&z.stop, 1);
 		pthread_join(th, NULL);

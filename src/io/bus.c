@@ -10,6 +10,9 @@
  * struct qw_bus_curve; client authentication is the ZAP handler's (RFC 27,
  * auth.c decides, the daemon services the socket), and multi-frame
  * qw_bus_recv_parts/qw_bus_send_parts carry its requests and replies.
+ * The relay's proxy is a poll loop of our own rather than zmq_proxy, which
+ * returns only on an error: a stop signal that came while it was not in
+ * its poll (forwarding) was lost, and the relay went on forwarding.
  *
  * Workload: the daemon receives tens of thousands of frames a second (one
  * binary batch of 64 readings each at full rate); per message this file
@@ -17,12 +20,15 @@
 #include "bus.h"
 
 #include <errno.h>
+#include <signal.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include <zmq.h>
 
 #include "quadwatch.h"
+
+#define BUS_PROXY_BURST 256 /* messages forwarded one way per poll */
 
 struct qw_bus {
 	void *ctx;
@@ -518,12 +524,61 @@ void qw_bus_poller_fd_ready(const qw_bus_poller *p, int *readable,
 		*readable = 1; /* the read reports the error */
 }
 
-int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend)
+/* Moves the messages waiting on from to to, whole (every frame of one
+ * before the next), at most BUS_PROXY_BURST of them: 0, or -1 with
+ * zmq_errno set (EAGAIN only between messages means none left). */
+static int bus_forward(void *from, void *to)
 {
-	if (zmq_proxy(frontend->z, backend->z, NULL) != 0) {
-		if (zmq_errno() == EINTR || zmq_errno() == ETERM)
-			return 1;
-		return QW_ERROR(QW_EIO);
+	zmq_msg_t m;
+	int k, more, rc = 0;
+	size_t len = sizeof more;
+
+	if (zmq_msg_init(&m) != 0)
+		return -1;
+	for (k = 0; k < BUS_PROXY_BURST; k++) {
+		if (zmq_msg_recv(&m, from, ZMQ_DONTWAIT) < 0) {
+			if (zmq_errno() != EAGAIN)
+				rc = -1;
+			break;
+		}
+		do { /* the rest of the message is already here */
+			if (zmq_getsockopt(from, ZMQ_RCVMORE, &more, &len) != 0
+			    || zmq_msg_send(&m, to, more ? ZMQ_SNDMORE : 0) < 0
+			    || (more && zmq_msg_recv(&m, from, 0) < 0)) {
+				rc = -1;
+				break;
+			}
+		} while (more);
+		if (rc != 0)
+			break;
+	}
+	zmq_msg_close(&m);
+	return rc;
+}
+
+int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend,
+		 const volatile sig_atomic_t *stop, long tick_ms)
+{
+	zmq_pollitem_t it[2];
+
+	memset(it, 0, sizeof it);
+	it[0].socket = frontend->z;
+	it[0].events = ZMQ_POLLIN;
+	it[1].socket = backend->z;
+	it[1].events = ZMQ_POLLIN;
+	while (!*stop) {
+		int rc = zmq_poll(it, 2, tick_ms);
+
+		if (rc < 0 && zmq_errno() == EINTR)
+			continue; /* the flag says whether it was ours */
+		if (rc < 0)
+			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
+		if ((it[0].revents & ZMQ_POLLIN) != 0 &&
+		    bus_forward(frontend->z, backend->z) != 0)
+			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
+		if ((it[1].revents & ZMQ_POLLIN) != 0 &&
+		    bus_forward(backend->z, frontend->z) != 0)
+			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
 	}
 	return 1;
 }

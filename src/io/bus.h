@@ -10,6 +10,7 @@
 #ifndef QW_BUS_H
 #define QW_BUS_H
 
+#include <signal.h>
 #include <stddef.h>
 #include <stdint.h>
 
@@ -178,8 +179,12 @@ void qw_bus_poller_set_fd(qw_bus_poller *p, int fd, int want_write);
 void qw_bus_poller_fd_ready(const qw_bus_poller *p, int *readable,
 			    int *writable);
 
-/* Forwards between frontend and backend (zmq_proxy) until a signal
- * interrupts (returns 1) or a socket fails (QW_EIO). */
-int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend);
+/* Forwards whole messages both ways between frontend and backend (as
+ * zmq_proxy does) until *stop is set: it is looked at after every poll,
+ * which a signal interrupts and which waits at most tick_ms, so a stop
+ * set by a signal handler is seen at once or within tick_ms.  1 when
+ * stopped (or the context ended), QW_EIO when a socket fails. */
+int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend,
+		 const volatile sig_atomic_t *stop, long tick_ms);
 
 #endif

@@ -408,16 +408,3 @@ int qw_capture_detect(const void *buf, size_t len)
 	return len >= QW_CAPTURE_MAGIC_LEN &&
 	       memcmp(buf, QW_CAPTURE_MAGIC, QW_CAPTURE_MAGIC_LEN) == 0;
 }
-
-int qw_capture_probe(const char *path)
-{
-	unsigned char h[QW_CAPTURE_MAGIC_LEN];
-	FILE *fp = fopen(path, "rb");
-	size_t n;
-
-	if (fp == NULL)
-		return QW_ERROR(QW_EIO);
-	n = fread(h, 1, sizeof h, fp);
-	fclose(fp);
-	return qw_capture_detect(h, n);
-}

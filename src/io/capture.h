@@ -112,7 +112,5 @@ void qw_capture_reader_close(struct qw_capture_reader *r);
 
 /* 1 when buf[0..len) begins with the magic, else 0. */
 int qw_capture_detect(const void *buf, size_t len);
-/* 1 when the file at path begins with the magic, 0 if not, QW_EIO. */
-int qw_capture_probe(const char *path);
 
 #endif

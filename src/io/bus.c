@@ -569,15 +569,13 @@ int qw_bus_proxy(qw_bus_sock *frontend, qw_bus_sock *backend,
 	while (!*stop) {
 		int rc = zmq_poll(it, 2, tick_ms);
 
+		if (rc >= 0 && (it[0].revents & ZMQ_POLLIN) != 0)
+			rc = bus_forward(frontend->z, backend->z);
+		if (rc >= 0 && (it[1].revents & ZMQ_POLLIN) != 0)
+			rc = bus_forward(backend->z, frontend->z);
 		if (rc < 0 && zmq_errno() == EINTR)
 			continue; /* the flag says whether it was ours */
 		if (rc < 0)
-			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
-		if ((it[0].revents & ZMQ_POLLIN) != 0 &&
-		    bus_forward(frontend->z, backend->z) != 0)
-			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
-		if ((it[1].revents & ZMQ_POLLIN) != 0 &&
-		    bus_forward(backend->z, frontend->z) != 0)
 			return zmq_errno() == ETERM ? 1 : QW_ERROR(QW_EIO);
 	}
 	return 1;

@@ -52,14 +52,21 @@ def group_ini(name, p):
             "alarms_per_day = 1\nwarmup = 500\n" % (name, ", ".join(channels(p))))
 
 
-def readings(n, p, seed):
-    """n correlated readings around plant-like levels (fixed seed)."""
+def reading_chunks(n, p, seed, chunk):
+    """n correlated readings around plant-like levels (fixed seed), as
+    (t, x) pieces of at most chunk readings."""
     rng = np.random.default_rng(seed)
     mix = rng.normal(size=(p, p)) * 0.3 + np.eye(p)
     level = rng.uniform(5, 500, size=p)
-    x = rng.normal(size=(n, p)) @ mix.T + level
-    t = T0 + DT * np.arange(n)
-    return t, x
+    for s in range(0, n, chunk):
+        m = min(chunk, n - s)
+        yield (T0 + DT * np.arange(s, s + m),
+               rng.normal(size=(m, p)) @ mix.T + level)
+
+
+def readings(n, p, seed):
+    """The n readings of reading_chunks in one piece."""
+    return next(reading_chunks(n, p, seed, max(n, 1)))
 
 
 def write_csv(path, t, x):
@@ -78,15 +85,25 @@ def binary_frame(p, t, x, seq):
     return head + rec.tobytes()
 
 
+CAPTURE_HEADER = b"QWCAP1" + struct.pack("<HII", 1, 0, 0)
+
+
+def capture_records(f, topic, t, x, seq):
+    """Readings t, x as capture records (binary batches of BATCH, the
+    first numbered seq) written to the binary stream f."""
+    tb = topic.encode()
+    for i in range(0, len(t), BATCH):
+        pay = binary_frame(x.shape[1], t[i:i + BATCH], x[i:i + BATCH],
+                           seq + i)
+        f.write(struct.pack("<dH", t[i], len(tb)) + tb)
+        f.write(struct.pack("<I", len(pay)) + pay)
+
+
 def write_capture(path, topic, t, x):
     """The `record` file format (src/io/capture.h)."""
-    tb = topic.encode()
     with open(path, "wb") as f:
-        f.write(b"QWCAP1" + struct.pack("<HII", 1, 0, 0))
-        for i in range(0, len(t), BATCH):
-            pay = binary_frame(x.shape[1], t[i:i + BATCH], x[i:i + BATCH], i)
-            f.write(struct.pack("<dH", t[i], len(tb)) + tb)
-            f.write(struct.pack("<I", len(pay)) + pay)
+        f.write(CAPTURE_HEADER)
+        capture_records(f, topic, t, x, 0)
 
 
 def load():
@@ -135,19 +152,11 @@ def bench_replay(tmp, n, runs):
 def stream_capture(out, topic, n, p, seed):
     """Writes a capture of n readings to the binary stream out, made and
     sent a million at a time (the stream never sits in memory whole)."""
-    rng = np.random.default_rng(seed)
-    mix = rng.normal(size=(p, p)) * 0.3 + np.eye(p)
-    level = rng.uniform(5, 500, size=p)
-    tb = topic.encode()
-    out.write(b"QWCAP1" + struct.pack("<HII", 1, 0, 0))
-    for s in range(0, n, 1000000):
-        m = min(1000000, n - s)
-        x = rng.normal(size=(m, p)) @ mix.T + level
-        t = T0 + DT * np.arange(s, s + m)
-        for i in range(0, m, BATCH):
-            pay = binary_frame(p, t[i:i + BATCH], x[i:i + BATCH], s + i)
-            out.write(struct.pack("<dH", t[i], len(tb)) + tb)
-            out.write(struct.pack("<I", len(pay)) + pay)
+    out.write(CAPTURE_HEADER)
+    seq = 0
+    for t, x in reading_chunks(n, p, seed, 1000000):
+        capture_records(out, topic, t, x, seq)
+        seq += len(t)
 
 
 def long_run(cfg, n):

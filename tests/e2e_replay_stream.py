@@ -10,9 +10,10 @@ several groups (each -j worker reads every input, which a stream cannot
 give twice: one thread then reads it).  A capture cut inside a record on
 a pipe plays its whole records and warns, as the cut file does.  Inputs
 shorter than the capture magic, a partial magic, and a stream that is not
-a capture are CSV.  The comparisons can fail: a stream that loses its
-first bytes (the bug this guards against) fails the CSV header, which is
-checked by replaying a copy with its first six bytes dropped."""
+a capture are CSV.  The comparisons can fail: a CSV that loses its first
+six bytes (the bug this guards against) loses its time column's name and
+a channel's, and a replay of such a copy is checked to give other
+results."""
 import os
 import subprocess
 import threading

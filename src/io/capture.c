@@ -22,6 +22,7 @@
 #include <unistd.h>
 
 #include "bytes.h"
+#include "input.h"
 #include "quadwatch.h"
 
 #define CAPTURE_BUF (64u << 10) /* bytes of stdio buffer per writer */
@@ -211,7 +212,7 @@ uint64_t qw_capture_writer_records(const struct qw_capture_writer *w)
 
 struct qw_capture_reader {
 	FILE *fp;
-	int own_fp;              /* 1: fclose at close */
+	struct qw_input *own_in; /* opened by path: closed at close */
 	uint64_t size, off;      /* file size (or QW_CAPTURE_SIZE_UNKNOWN),
 				    bytes consumed */
 	size_t max_payload;
@@ -289,28 +290,26 @@ int qw_capture_reader_open_stream(FILE *fp, uint64_t size,
 int qw_capture_reader_open(const char *path, size_t max_payload,
 			   struct qw_capture_reader **out)
 {
-	struct stat st;
-	FILE *fp = fopen(path, "rb");
+	struct qw_input *in = malloc(sizeof *in);
 	int rc;
 
 	*out = NULL;
-	if (fp == NULL)
-		return QW_ERROR(QW_EIO);
-	if (fstat(fileno(fp), &st) != 0) {
-		fclose(fp);
-		return QW_ERROR(QW_EIO);
+	if (in == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	rc = qw_input_open(path, in);
+	if (rc != 0) {
+		free(in);
+		return rc;
 	}
-	if (!S_ISREG(st.st_mode)) {
-		fclose(fp);
-		errno = EINVAL; /* lengths are checked against a known size */
-		return QW_ERROR(QW_EIO);
-	}
-	rc = qw_capture_reader_open_stream(fp, (uint64_t)st.st_size,
+	rc = qw_capture_reader_open_stream(in->fp, in->regular ? in->size
+					   : QW_CAPTURE_SIZE_UNKNOWN,
 					   max_payload, out);
-	if (rc != 0)
-		fclose(fp);
-	else
-		(*out)->own_fp = 1;
+	if (rc != 0) {
+		qw_input_close(in);
+		free(in);
+	} else {
+		(*out)->own_in = in;
+	}
 	return rc;
 }
 
@@ -397,8 +396,10 @@ void qw_capture_reader_close(struct qw_capture_reader *r)
 {
 	if (r == NULL)
 		return;
-	if (r->own_fp)
-		fclose(r->fp);
+	if (r->own_in != NULL) {
+		qw_input_close(r->own_in);
+		free(r->own_in);
+	}
 	free(r->payload);
 	free(r);
 }

@@ -26,8 +26,8 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
 
+#include "input.h"
 #include "log.h"
 #include "num.h"
 #include "quadwatch.h"
@@ -42,7 +42,7 @@
 
 struct qw_csvin {
 	FILE *fp;
-	int own_fp;              /* 1: fclose at close */
+	struct qw_input *own_in; /* opened by path: closed at close */
 	char *name;              /* path, for messages */
 	struct csv_parser csv;
 	int csv_live;            /* csv_init succeeded */
@@ -435,26 +435,32 @@ nomem:
 int qw_csvin_open(const char *path, qw_csvin_report_fn *report, void *ctx,
 		  struct qw_csvin **out, char *err, size_t errlen)
 {
-	struct stat st;
-	FILE *fp;
-	uint64_t size = 0;
-	int rc, is_stdin = strcmp(path, "-") == 0;
+	struct qw_input *in = malloc(sizeof *in);
+	int rc;
 
 	*out = NULL;
-	fp = is_stdin ? stdin : fopen(path, "rb");
-	if (fp == NULL) {
+	if (in == NULL) {
 		if (errlen > 0)
-			snprintf(err, errlen, "%s: %s", path, strerror(errno));
-		return QW_ERROR(QW_EIO);
+			snprintf(err, errlen, "%s: out of memory", path);
+		return QW_ERROR(QW_ENOMEM);
 	}
-	if (fstat(fileno(fp), &st) == 0 && S_ISREG(st.st_mode))
-		size = (uint64_t)st.st_size;
-	rc = qw_csvin_open_stream(fp, is_stdin ? "(stdin)" : path, size,
-				  report, ctx, out, err, errlen);
-	if (rc != 0 && !is_stdin)
-		fclose(fp);
-	else if (rc == 0)
-		(*out)->own_fp = !is_stdin;
+	rc = qw_input_open(path, in);
+	if (rc != 0) {
+		if (errlen > 0)
+			snprintf(err, errlen, "%s: %s", path,
+				 rc == QW_ENOMEM ? "out of memory"
+				 : strerror(errno));
+		free(in);
+		return rc;
+	}
+	rc = qw_csvin_open_stream(in->fp, in->name, in->size, report, ctx,
+				  out, err, errlen);
+	if (rc != 0) {
+		qw_input_close(in);
+		free(in);
+	} else {
+		(*out)->own_in = in;
+	}
 	return rc;
 }
 
@@ -464,8 +470,10 @@ void qw_csvin_close(struct qw_csvin *c)
 
 	if (c == NULL)
 		return;
-	if (c->own_fp)
-		fclose(c->fp);
+	if (c->own_in != NULL) {
+		qw_input_close(c->own_in);
+		free(c->own_in);
+	}
 	if (c->csv_live)
 		csv_free(&c->csv);
 	for (j = 0; j < c->ncols; j++)

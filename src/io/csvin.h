@@ -47,7 +47,8 @@ struct qw_csvin_row {
  * NULL at open: qw_log warns of the first QW_CSVIN_REPORT_MAX. */
 typedef void qw_csvin_report_fn(void *ctx, const char *msg);
 
-/* Opens path ("-" = standard input) and reads its header row.  0, or
+/* Opens path through qw_input_open (input.h; "-" = standard input) and
+ * reads its header row.  0, or
  * QW_EIO (err says why, with the path), QW_EFORMAT (no header row, or too
  * many columns), QW_EOVERSIZE (a field too long), QW_ENOMEM. */
 int qw_csvin_open(const char *path, qw_csvin_report_fn *report, void *ctx,

@@ -3,7 +3,7 @@
  * Oracles: records written are read back byte for byte, across rotated
  * parts; a file cut at every byte of its last record yields the records
  * before it and then QW_ETRUNC, read with its size known or as a stream
- * of unknown size (a pipe); each corrupted header field is refused
+ * of unknown size (a pipe, also through a FIFO's path); each corrupted header field is refused
  * with its own code; the byte layout is checked against capture.h by
  * hand. */
 #include <stdarg.h>
@@ -18,6 +18,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/wait.h>
 #include <unistd.h>
 
 #include "capture.h"
@@ -177,6 +178,38 @@ static void test_roundtrip(void **state)
 	qw_capture_reader_progress(r, &done, &total);
 	assert_true(done == QW_CAPTURE_HEADER && total > done);
 	qw_capture_reader_close(r);
+}
+
+/* A capture path that names a FIFO: qw_capture_reader_open reads it as a
+ * stream of unknown size (input.c), every record and then a clean end,
+ * while a child copies the file into the FIFO. */
+static void test_fifo_path(void **state)
+{
+	struct t_dir *d = *state;
+	char fifo[160];
+	pid_t pid;
+	int st;
+
+	t_write_all(d->out, T_RECS, 0);
+	snprintf(fifo, sizeof fifo, "%s/live.fifo", d->dir);
+	assert_int_equal(mkfifo(fifo, 0600), 0);
+	pid = fork();
+	assert_true(pid >= 0);
+	if (pid == 0) {
+		char buf[512];
+		FILE *in = fopen(d->out, "rb"), *out = fopen(fifo, "wb");
+		size_t n;
+
+		if (in == NULL || out == NULL)
+			_exit(2);
+		while ((n = fread(buf, 1, sizeof buf, in)) > 0)
+			if (fwrite(buf, 1, n, out) != n)
+				_exit(3);
+		_exit(fclose(out) == 0 ? 0 : 4);
+	}
+	assert_int_equal(t_read_check(fifo, 0, 0), T_RECS);
+	assert_int_equal(waitpid(pid, &st, 0), pid);
+	assert_true(WIFEXITED(st) && WEXITSTATUS(st) == 0);
 }
 
 /* The bytes on disk, field by field, as capture.h documents them. */
@@ -453,6 +486,8 @@ int main(void)
 {
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test_setup_teardown(test_roundtrip, t_setup,
+						t_teardown),
+		cmocka_unit_test_setup_teardown(test_fifo_path, t_setup,
 						t_teardown),
 		cmocka_unit_test_setup_teardown(test_layout, t_setup,
 						t_teardown),

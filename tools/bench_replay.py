@@ -4,8 +4,9 @@
 Replay: one group of p = 16 channels, N readings, as a CSV (values printed
 as a data-acquisition program logs them, 6 significant digits) and as a
 capture (the `record` format, binary QWB1 batches of 64).  Each input is
-replayed with and without --scores; the figure is the median of --runs
-runs: readings/s, and MB/s of input.  The machine's load average is
+replayed with and without --scores, on one core and with -j2; the figure
+is the median of --runs interleaved rounds: readings/s, and MB/s of
+input.  The machine's load average is
 printed beside them: on a shared machine the figures are noisy.
 
 Groups: --groups groups of p = 16 behind one daemon, readings spread
@@ -110,23 +111,26 @@ def load():
     return open("/proc/loadavg").read().split()[0]
 
 
-def time_replay(cfg, inp, scores, runs, extra=()):
+def time_replay(cfg, inp, scores, extra=()):
+    """Wall seconds of one replay."""
     cmd = [QW, "replay", "-c", cfg, "--json", "-q"] + list(extra)
     if scores:
         cmd += ["--scores", scores]
     cmd.append(inp)
-    secs = []
-    for _ in range(runs):
-        t0 = time.monotonic()
-        r = subprocess.run(cmd, stdout=subprocess.DEVNULL,
-                           stderr=subprocess.PIPE, text=True)
-        secs.append(time.monotonic() - t0)
-        if r.returncode != 0:
-            sys.exit("replay failed: %s" % r.stderr)
-    return statistics.median(secs)
+    t0 = time.monotonic()
+    r = subprocess.run(cmd, stdout=subprocess.DEVNULL,
+                       stderr=subprocess.PIPE, text=True)
+    secs = time.monotonic() - t0
+    if r.returncode != 0:
+        sys.exit("replay failed: %s" % r.stderr)
+    return secs
 
 
 def bench_replay(tmp, n, runs):
+    """Capture and CSV, with and without --scores, on one core and with
+    -j2 (one group: the second thread takes the p-values and rows).  The
+    runs are interleaved (every case once per round), so a machine whose
+    speed drifts skews the cases alike; medians of the rounds."""
     cfg = os.path.join(tmp, "r.ini")
     with open(cfg, "w") as f:
         f.write(group_ini("g16", P))
@@ -136,16 +140,23 @@ def bench_replay(tmp, n, runs):
     write_csv(csv, t, x)
     write_capture(cap, "g16", t, x)
     out = os.path.join(tmp, "scores.csv")
-    print("== replay: %d readings of p = %d, median of %d runs, load %s"
-          % (n, P, runs, load()))
-    print("%-8s %-8s %10s %14s %10s" % ("input", "scores", "s", "readings/s",
-                                        "MB/s"))
-    for name, path in (("capture", cap), ("csv", csv)):
+    cases = [(name, path, sc, jobs)
+             for name, path in (("capture", cap), ("csv", csv))
+             for jobs in (1, 2) for sc in (None, out)]
+    secs = [[] for _ in cases]
+    print("== replay: %d readings of p = %d, median of %d interleaved runs, "
+          "load %s" % (n, P, runs, load()))
+    for _ in range(runs):
+        for k, (name, path, sc, jobs) in enumerate(cases):
+            extra = ("-j%d" % jobs,) if jobs > 1 else ()
+            secs[k].append(time_replay(cfg, path, sc, extra))
+    print("%-8s %-4s %-8s %10s %14s %10s" % ("input", "-j", "scores", "s",
+                                             "readings/s", "MB/s"))
+    for k, (name, path, sc, jobs) in enumerate(cases):
+        s = statistics.median(secs[k])
         mb = os.path.getsize(path) / 1e6
-        for sc in (None, out):
-            s = time_replay(cfg, path, sc, runs)
-            print("%-8s %-8s %10.3f %14.0f %10.1f" % (
-                name, "yes" if sc else "no", s, n / s, mb / s))
+        print("%-8s %-4d %-8s %10.3f %14.0f %10.1f" % (
+            name, jobs, "yes" if sc else "no", s, n / s, mb / s))
     print("(load after: %s)" % load())
 
 

@@ -120,7 +120,7 @@ static double rand_value(gsl_rng *r)
 static void test_fmt_random(void **state)
 {
 	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
-	static const int precs[] = {6, 10, 1, 3, 12};
+	static const int precs[] = {6, 10, 1, 3, 8, 9, 12};
 	size_t i, j;
 
 	(void)state;

@@ -9,10 +9,15 @@ import qwtest as q
 
 q.need_program()
 BATCH = 64
-CHUNK = 256 * BATCH  # readings sent before waiting for the daemon: keeps
-                     # libzmq's queue (and so the heap) at a bounded backlog
+CHUNK = 32 * BATCH  # readings sent before waiting for the daemon: keeps
+                    # libzmq's queue (and so the heap) at a bounded backlog,
+                    # 32 messages of 8.7 kB: the heap's high water after the
+                    # warm-up may still rise by one backlog (freed messages
+                    # stay resident), 0.28 MB, well under GROWTH_MAX (at
+                    # 256 messages, 2.2 MB, a slow spell failed the bound)
 TOTAL = int(os.environ.get("QW_MEM_BATCHES", "15625")) * BATCH  # 10^6
-WARM = 10 * CHUNK  # 10^6 readings; warm-up ~10%
+WARM = 80 * CHUNK  # 163840 readings of 10^6; warm-up ~16%
+POLL = 0.002  # s between status requests while waiting for a chunk
 GROWTH_MAX = 1024  # KiB: the bound
 P = len(q.SKID)
 
@@ -50,7 +55,7 @@ while done < TOTAL:
     n = min(CHUNK, TOTAL - done)
     send(done, n)
     done += n
-    d.wait_readings("skid", done, timeout=60)
+    d.wait_readings("skid", done, timeout=60, poll=POLL)
     sub.pump(0)
     if os.environ.get("QW_MEM_TRACE"):
         q.note("%d %d" % (done, d.rss_kib()))

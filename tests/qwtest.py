@@ -339,14 +339,15 @@ class Daemon:
         check(r.get("ok") is True, "status not ok: %r" % r)
         return r
 
-    def wait_readings(self, group, n, timeout=WAIT):
-        """Waits until the group has been offered n readings."""
+    def wait_readings(self, group, n, timeout=WAIT, poll=0.05):
+        """Waits until the group has been offered n readings (status
+        asked every poll seconds)."""
         end = time.monotonic() + timeout
         while time.monotonic() < end:
             st = self.status()
             if st["groups"][group]["readings"] >= n:
                 return st
-            time.sleep(0.05)
+            time.sleep(poll)
         fail("group %s: %d of %d readings after %.0f s" %
              (group, st["groups"][group]["readings"], n, timeout))
 

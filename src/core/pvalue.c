@@ -119,7 +119,7 @@ double qw_pvalue_f(struct qw_pvalue_memo *memo, double u, unsigned dof,
 		}
 	}
 	lny1 = log(u) + lny;        /* ln(1-y) */
-	y = exp(lny);
+	y = 1.0 / (1.0 + u);         /* one rounding, not exp(-log1p(u)) */
 	pre = exp(a * lny + b * lny1 - lnb);
 	if (y < (a + 1.0) / (a + b + 2.0))
 		return pre * pv_beta_cf(a, b, y) / a;

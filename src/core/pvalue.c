@@ -15,8 +15,8 @@
  * between calls of the same (d, d2): a replay scores millions of readings
  * against a handful of such pairs.  Cost against GSL's gsl_cdf_fdist_Q
  * (same figure) at nu = 2885, q about dof, one run (2026-12-03): even dof
- * 45 ns against 546 ns; odd 228 ns against 639 ns (340 ns by Lentz's
- * method before), the fraction's pairs of terms (about 25 here) growing
+ * 43 ns against 553 ns; odd 199 ns against 606 ns (324 ns before, by
+ * Lentz's method), the fraction's pairs of terms (about 25 here) growing
  * with sqrt(nu) in the bulk of the distribution.
  * Known parameters (nu infinite): GSL's chi-square tail. */
 #include <float.h>

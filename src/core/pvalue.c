@@ -43,7 +43,7 @@
  *   A_n = (1 + d_n-1 + d_n-2) A_n-2 - d_n-2 d_n-3 A_n-4,
  * one multiply-add per pair on the chain from one convergent to the next,
  * the terms' divisions off it (Lentz's method, used before, had divisions
- * on its chains: 1.7x the time on odd dof).  The four values are scaled
+ * on its chains: 1.5-1.8x the time on odd dof).  The four values are scaled
  * by PV_CF_SMALL, exactly, when B grows past PV_CF_BIG. */
 static double pv_beta_cf(double a, double b, double x)
 {

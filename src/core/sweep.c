@@ -197,7 +197,7 @@ sweep_tri4(struct sweep_state *st, struct sweep_blk *k,
  * start afresh every block are more than the hardware prefetchers follow:
  * once the two factors outgrow the first-level cache (p above ~70) the
  * sweep waited on the second level.  Below that the prefetches are only
- * extra work (p = 16-56 ran 5-11% faster without them), so they start at
+ * extra work (p = 16-48 ran 5-8% faster without them), so they start at
  * p = SWEEP_PF_MIN, where the factors pass the smaller first-level caches
  * of current x86-64 parts (32 kB; on the 48 kB machine measured, leaving
  * them out cost 28% at p = 80).  Near a column's end the prefetch runs

@@ -3,9 +3,9 @@
  * Oracles: records written are read back byte for byte, across rotated
  * parts; a file cut at every byte of its last record yields the records
  * before it and then QW_ETRUNC, read with its size known or as a stream
- * of unknown size (a pipe, also through a FIFO's path); each corrupted header field is refused
- * with its own code; the byte layout is checked against capture.h by
- * hand. */
+ * of unknown size (a pipe; also a FIFO named by its path); each corrupted
+ * header field is refused with its own code; the byte layout is checked
+ * against capture.h by hand. */
 #include <stdarg.h>
 #include <stddef.h>
 #include <setjmp.h>

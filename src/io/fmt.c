@@ -37,7 +37,7 @@
 				  2^-33 for %.6f's fraction) */
 #define FMT_F_DIGITS 6         /* decimals of qw_fmt_f6 */
 #define FMT_F_SCALE 1e6        /* 10^FMT_F_DIGITS */
-#define FMT_F_FRAC_SKIP 2      /* the fraction's 6 digits end 8 from fmt_digits8 */
+#define FMT_F_FRAC_SKIP 2      /* fmt_digits8's 8 digits: the 6 after 2 */
 #define FMT_F_INT_MAX 4.5e15   /* |v| below 2^52: floor and fraction exact */
 #define FMT_F_WHOLE_MAX 16     /* digits of a whole part below 4.5e15 + 1 */
 #define FMT_MANT_BITS 52       /* binary64: stored significand bits */

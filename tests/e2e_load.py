@@ -146,7 +146,8 @@ q.note("paced 2000 messages over %.2f s: caught up %.3f s after the last"
 q.check(st["groups"]["wide"]["lost"] == lost0, "lost readings while paced")
 q.check(lag <= LAG_MAX, "lag %.2f s after the burst" % lag)
 rc, _ = D.stop()
-q.check(rc == 0, "burst daemon stop %d" % rc)
+q.check(rc == 0, "burst daemon stop %d; the daemon's log ends:\n%s" %
+        (rc, D.logtext()[-3000:]))
 pub.close()
 sub.close()
 
@@ -212,5 +213,5 @@ q.check(st["alerts_sent"] - a0 > 10000 + 1000,
 q.check(slow.poll(1000), "the slow subscriber got nothing at all")
 slow.close()
 rc, _ = D.stop()
-q.check(rc == 0, "stop %d" % rc)
+q.check(rc == 0, "stop %d; the daemon's log ends:\n%s" % (rc, D.logtext()[-3000:]))
 print("ok")

@@ -290,26 +290,20 @@ int qw_capture_reader_open_stream(FILE *fp, uint64_t size,
 int qw_capture_reader_open(const char *path, size_t max_payload,
 			   struct qw_capture_reader **out)
 {
-	struct qw_input *in = malloc(sizeof *in);
+	struct qw_input *in;
 	int rc;
 
 	*out = NULL;
-	if (in == NULL)
-		return QW_ERROR(QW_ENOMEM);
-	rc = qw_input_open(path, in);
-	if (rc != 0) {
-		free(in);
+	rc = qw_input_new(path, &in);
+	if (rc != 0)
 		return rc;
-	}
 	rc = qw_capture_reader_open_stream(in->fp, in->regular ? in->size
 					   : QW_CAPTURE_SIZE_UNKNOWN,
 					   max_payload, out);
-	if (rc != 0) {
-		qw_input_close(in);
-		free(in);
-	} else {
+	if (rc != 0)
+		qw_input_free(in);
+	else
 		(*out)->own_in = in;
-	}
 	return rc;
 }
 
@@ -396,10 +390,7 @@ void qw_capture_reader_close(struct qw_capture_reader *r)
 {
 	if (r == NULL)
 		return;
-	if (r->own_in != NULL) {
-		qw_input_close(r->own_in);
-		free(r->own_in);
-	}
+	qw_input_free(r->own_in);
 	free(r->payload);
 	free(r);
 }

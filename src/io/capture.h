@@ -86,8 +86,9 @@ struct qw_capture_rec {
 
 /* Opens path through qw_input_open (input.h: "-" is standard input, and
  * a pipe or FIFO is read as a stream of unknown size, below) and checks
- * its header.  max_payload bounds plen (and sizes the reader's buffer).  0, QW_EIO, QW_ENOMEM, QW_EFORMAT (not a capture,
- * or nonzero flags), QW_ETRUNC (shorter than the header), QW_EVERSION. */
+ * its header.  max_payload bounds plen (and sizes the reader's buffer).
+ * 0, QW_EIO, QW_ENOMEM, QW_EFORMAT (not a capture, or nonzero flags),
+ * QW_ETRUNC (shorter than the header), QW_EVERSION. */
 int qw_capture_reader_open(const char *path, size_t max_payload,
 			   struct qw_capture_reader **out);
 /* The same over a stream of size bytes (not closed by the reader), or of

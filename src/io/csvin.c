@@ -435,32 +435,24 @@ nomem:
 int qw_csvin_open(const char *path, qw_csvin_report_fn *report, void *ctx,
 		  struct qw_csvin **out, char *err, size_t errlen)
 {
-	struct qw_input *in = malloc(sizeof *in);
+	struct qw_input *in;
 	int rc;
 
 	*out = NULL;
-	if (in == NULL) {
-		if (errlen > 0)
-			snprintf(err, errlen, "%s: out of memory", path);
-		return QW_ERROR(QW_ENOMEM);
-	}
-	rc = qw_input_open(path, in);
+	rc = qw_input_new(path, &in);
 	if (rc != 0) {
 		if (errlen > 0)
 			snprintf(err, errlen, "%s: %s", path,
 				 rc == QW_ENOMEM ? "out of memory"
 				 : strerror(errno));
-		free(in);
 		return rc;
 	}
 	rc = qw_csvin_open_stream(in->fp, in->name, in->size, report, ctx,
 				  out, err, errlen);
-	if (rc != 0) {
-		qw_input_close(in);
-		free(in);
-	} else {
+	if (rc != 0)
+		qw_input_free(in);
+	else
 		(*out)->own_in = in;
-	}
 	return rc;
 }
 
@@ -470,10 +462,7 @@ void qw_csvin_close(struct qw_csvin *c)
 
 	if (c == NULL)
 		return;
-	if (c->own_in != NULL) {
-		qw_input_close(c->own_in);
-		free(c->own_in);
-	}
+	qw_input_free(c->own_in);
 	if (c->csv_live)
 		csv_free(&c->csv);
 	for (j = 0; j < c->ncols; j++)

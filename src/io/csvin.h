@@ -48,9 +48,9 @@ struct qw_csvin_row {
 typedef void qw_csvin_report_fn(void *ctx, const char *msg);
 
 /* Opens path through qw_input_open (input.h; "-" = standard input) and
- * reads its header row.  0, or
- * QW_EIO (err says why, with the path), QW_EFORMAT (no header row, or too
- * many columns), QW_EOVERSIZE (a field too long), QW_ENOMEM. */
+ * reads its header row.  0, or QW_EIO (err says why, with the path),
+ * QW_EFORMAT (no header row, or too many columns), QW_EOVERSIZE (a field
+ * too long), QW_ENOMEM. */
 int qw_csvin_open(const char *path, qw_csvin_report_fn *report, void *ctx,
 		  struct qw_csvin **out, char *err, size_t errlen);
 /* The same over an open stream (not closed by qw_csvin_close); name is

@@ -143,6 +143,31 @@ void qw_input_close(struct qw_input *in)
 	memset(in, 0, sizeof *in);
 }
 
+int qw_input_new(const char *path, struct qw_input **out)
+{
+	struct qw_input *in = malloc(sizeof *in);
+	int rc;
+
+	*out = NULL;
+	if (in == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	rc = qw_input_open(path, in);
+	if (rc != 0) {
+		free(in);
+		return rc;
+	}
+	*out = in;
+	return 0;
+}
+
+void qw_input_free(struct qw_input *in)
+{
+	if (in == NULL)
+		return;
+	qw_input_close(in);
+	free(in);
+}
+
 int qw_input_once(const char *path)
 {
 	struct stat st;

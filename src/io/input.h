@@ -28,6 +28,12 @@ int qw_input_open(const char *path, struct qw_input *in);
 /* Closes what qw_input_open opened; in is zeroed. */
 void qw_input_close(struct qw_input *in);
 
+/* qw_input_open into an input of its own, for a reader that keeps it
+ * (csvin.c, capture.c); qw_input_free (NULL: nothing) closes and frees
+ * it.  0, QW_EIO (errno says why), QW_ENOMEM. */
+int qw_input_new(const char *path, struct qw_input **out);
+void qw_input_free(struct qw_input *in);
+
 /* 1 when path is "-" or not a regular file (it can be read once), 0 when
  * it is one, QW_EIO when it cannot be examined. */
 int qw_input_once(const char *path);

@@ -147,10 +147,18 @@ struct replay_scored {
 	struct replay_group *g;
 	double t, q, limit;      /* s, score, limit in force */
 	double nu, scale;        /* of the result, for the p-value */
+	double pv;               /* the p-value, once the block's are done */
+	struct replay_key key;   /* of the reading (-j: tags its row) */
 	unsigned dof;
 	unsigned char over, in_alarm, warm;
 	const char *top;         /* channel name, or "" */
 };
+
+/* Scored readings held back in a serial run (or a -j worker) and done a
+ * block at a time (qw_replay_scored_block): a loop of p-values alone
+ * overlaps the independent chains of log1p and exp that, one reading at
+ * a time, waited behind the sweep. */
+#define RP_HELD 128
 
 struct replay {
 	struct replay_opts o;
@@ -171,6 +179,8 @@ struct replay {
 	struct replay_jobs *jobs;    /* NULL in a serial run */
 	struct replay_tail *tail;    /* -j with one group: the thread that
 					takes the p-values and rows */
+	struct replay_scored held[RP_HELD]; /* scored, not yet done */
+	size_t nheld;
 	struct replay_map *map;      /* cfg.ngroups */
 	size_t *scratch_idx;         /* column indices of groups not ours */
 	unsigned input;              /* index of the input being played */
@@ -217,8 +227,9 @@ static inline int qw_replay_owns(const struct replay *rp,
  * merges their scores, events and counters into rp as a serial run would
  * have left them.  0 or an exit code (message printed). */
 int qw_replay_jobs(struct replay *rp);
-/* A worker's --scores row (n bytes), tagged with rp->key. */
-void qw_replay_jobs_row(struct replay *rp, const char *row, size_t n);
+/* A worker's --scores row (n bytes), tagged with its reading's key. */
+void qw_replay_jobs_row(struct replay *rp, const struct replay_key *key,
+			const char *row, size_t n);
 /* A worker's readings so far, made visible to the progress line; and the
  * sum over all workers. */
 void qw_replay_jobs_publish(struct replay *rp);
@@ -228,8 +239,12 @@ uint64_t qw_replay_jobs_readings(const struct replay *rp);
 void qw_replay_reading(struct replay *rp, struct replay_group *g, double t,
 		       const double *x, int label);
 int qw_replay_scores_open(struct replay *rp);
-/* The p-value, the point and the --scores row of one scored reading. */
-void qw_replay_scored(struct replay *rp, const struct replay_scored *r);
+/* The p-values, then the points, then the --scores rows of n scored
+ * readings, in order (each r[i].pv is set). */
+void qw_replay_scored_block(struct replay *rp, struct replay_scored *r,
+			    size_t n);
+/* Does the readings held back (the end of an input). */
+void qw_replay_held_flush(struct replay *rp);
 void qw_replay_progress(struct replay *rp, int last);
 void qw_replay_finish(struct replay *rp);
 

@@ -388,6 +388,7 @@ int qw_replay_input(struct replay *rp, const char *path)
 		return QW_EXIT_FAIL;
 	}
 	rc = in.capture ? rp_capture(rp, &in) : rp_csv(rp, &in);
+	qw_replay_held_flush(rp);
 	qw_input_close(&in);
 	rp->bytes_before += rp->cur_total;
 	return rc;

@@ -42,13 +42,14 @@ struct replay_jobs {
 	int *rc;
 };
 
-void qw_replay_jobs_row(struct replay *rp, const char *row, size_t n)
+void qw_replay_jobs_row(struct replay *rp, const struct replay_key *key,
+			const char *row, size_t n)
 {
 	struct jobs_head h;
 
 	memset(&h, 0, sizeof h);
-	h.pos = rp->key.pos;
-	h.sub = rp->key.sub;
+	h.pos = key->pos;
+	h.sub = key->sub;
 	h.len = (uint32_t)n;
 	fwrite(&h, sizeof h, 1, rp->scores);
 	fwrite(row, 1, n, rp->scores);

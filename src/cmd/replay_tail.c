@@ -7,8 +7,8 @@
  * on that reading alone.  The playing thread hands them over in blocks of
  * TAIL_BLOCK readings through a ring of TAIL_BLOCKS blocks (a mutex and
  * two condition variables, one hand-over per block); the tail thread
- * takes the blocks in order and does exactly what qw_replay_scored does
- * in a serial run, so the points and rows are the same, in the same
+ * takes the blocks in order and does exactly what qw_replay_scored_block
+ * does in a serial run, so the points and rows are the same, in the same
  * order.  The playing thread waits when the ring is full.
  *
  * Memory: TAIL_BLOCKS * TAIL_BLOCK struct replay_scored (~5 MB). */
@@ -38,7 +38,7 @@ static void *tail_run(void *arg)
 
 	for (;;) {
 		struct replay_scored *b;
-		size_t i, n;
+		size_t n;
 
 		pthread_mutex_lock(&tl->mu);
 		while (tl->tail == tl->head && !tl->done)
@@ -50,8 +50,7 @@ static void *tail_run(void *arg)
 		b = tl->ring + (tl->tail % TAIL_BLOCKS) * TAIL_BLOCK;
 		n = tl->len[tl->tail % TAIL_BLOCKS];
 		pthread_mutex_unlock(&tl->mu);
-		for (i = 0; i < n; i++)
-			qw_replay_scored(tl->rp, &b[i]);
+		qw_replay_scored_block(tl->rp, b, n);
 		pthread_mutex_lock(&tl->mu);
 		tl->tail++;
 		pthread_cond_signal(&tl->emptied);

@@ -100,17 +100,51 @@ size_t qw_wire_binary_len(size_t p, size_t n)
 	return QW_WIRE_HEADER + n * rec;
 }
 
-/* The record loop: n records of p channels from s into b.  Values are
- * copied bit for bit (any NaN is "missing"); a single +-Inf, or a time
- * beyond QW_WIRE_TIME_MAX, refuses the frame.  The Inf test is accumulated
- * without a branch per value. */
+typedef double wire_v2 __attribute__((vector_size(16)));
+typedef int64_t wire_m2 __attribute__((vector_size(16)));
+
+/* p values from v to x, bit for bit (any NaN is "missing"); 1 when one of
+ * them is +-Inf, tested without a branch per value.  On a little-endian
+ * host two at a time in GCC's generic vectors (SSE2 on the baseline
+ * x86-64: an and and a compare per pair).  The scalar loop, which GCC's
+ * vectoriser does not take for its 64-bit compares, took 32-34 ns a
+ * reading at p = 16 against 14-15 ns (a frame of 500, one process,
+ * 2026-12-03). */
+static int wire_values(const unsigned char *restrict v, double *restrict x,
+		       size_t p)
+{
+	uint64_t u, inf = 0;
+	size_t j = 0;
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+	const wire_m2 abs_mask = {(int64_t)WIRE_ABS_MASK,
+				  (int64_t)WIRE_ABS_MASK};
+	const wire_v2 inf2 = {INFINITY, INFINITY};
+	wire_m2 hit = {0, 0};
+
+	for (; j + 2 <= p; j += 2) {
+		wire_m2 w;
+
+		memcpy(&w, v + j * WIRE_VALUE_BYTES, sizeof w);
+		memcpy(&x[j], &w, sizeof w);
+		hit |= (wire_v2)(w & abs_mask) == inf2;
+	}
+	inf = (uint64_t)(hit[0] | hit[1]);
+#endif
+	for (; j < p; j++) {
+		u = qw_le_get64(v + j * WIRE_VALUE_BYTES);
+		inf |= (uint64_t)((u & WIRE_ABS_MASK) == WIRE_INF_BITS);
+		memcpy(&x[j], &u, sizeof u);
+	}
+	return inf != 0;
+}
+
+/* The record loop: n records of p channels from s into b.  A single
+ * +-Inf, or a time beyond QW_WIRE_TIME_MAX, refuses the frame. */
 static int wire_binary_records(const unsigned char *s, size_t n,
 			       struct qw_wire_batch *b)
 {
-	size_t i, j, p = b->p;
-	uint64_t u, inf;
+	size_t i, p = b->p;
 	int64_t ns;
-	double *x;
 
 	for (i = 0; i < n; i++) {
 		ns = (int64_t)qw_le_get64(s);
@@ -118,14 +152,7 @@ static int wire_binary_records(const unsigned char *s, size_t n,
 			return QW_ERROR(QW_ERANGE);
 		b->t[i] = wire_ns_to_s(ns);
 		s += WIRE_TIME_BYTES;
-		x = b->x + i * p;
-		inf = 0;
-		for (j = 0; j < p; j++) {
-			u = qw_le_get64(s + j * WIRE_VALUE_BYTES);
-			inf |= (uint64_t)((u & WIRE_ABS_MASK) == WIRE_INF_BITS);
-			memcpy(&x[j], &u, sizeof u);
-		}
-		if (inf)
+		if (wire_values(s, b->x + i * p, p))
 			return QW_ERROR(QW_ERANGE);
 		s += p * WIRE_VALUE_BYTES;
 	}

@@ -162,6 +162,42 @@ static void pvalue_vs_gsl(void **st)
 				gsl_cdf_chisq_Q(7.0, 3), 0) < 1e-15);
 }
 
+/* Effective sizes far past any half-life in use (a model that never
+ * forgets, or a configuration error), where y = 1/(1+u) rounds near 1 and
+ * the beta form loses its footing: the p-value stays a probability, falls
+ * as q grows, and approaches its limit d F(d, d2) -> chi-square(d) as d2
+ * grows (a standard result), here GSL's chi-square tail.  The F form
+ * differs from that limit by about q^2 / (4 nu), below 2e-7 for these q
+ * at nu >= 1e12 and below 1e-12 at nu >= 1e20, where y is 1 to the last
+ * bit.  (The fraction in y alone had been 12% off at nu = 1e15 and had
+ * left [0, 1] from nu = 1e17.) */
+static void pvalue_huge_nu(void **st)
+{
+	const unsigned dofs[] = {1, 2, 3, 15, 33, 129};
+	const double nus[] = {1e12, 1e15, 1e17, 1e20, 1e40, 1e100};
+	size_t d, n;
+
+	(void)st;
+	for (d = 0; d < sizeof dofs / sizeof dofs[0]; d++)
+		for (n = 0; n < sizeof nus / sizeof nus[0]; n++) {
+			double dof = dofs[d], nu = nus[n], prev = 1.0, q;
+
+			for (q = 0.01 * dof; q < 8.0 * dof + 800; q *= 1.03) {
+				double pv = qw_limit_pvalue(q, dofs[d], nu, 1.0);
+				double ref = gsl_cdf_chisq_Q(q, dof);
+
+				assert_true(pv >= 0.0 && pv <= 1.0);
+				assert_true(pv <= prev + (dof / 2 + 4) *
+						      DBL_EPSILON);
+				prev = pv;
+				if (ref < 1e-280)
+					break;
+				assert_true(qwt_reldiff(pv, ref, 0) <
+					    (nu >= 1e20 ? 1e-12 : 1e-6));
+			}
+		}
+}
+
 static void alpha_argument_errors(void **st)
 {
 	double a;
@@ -238,6 +274,7 @@ int main(void)
 		cmocka_unit_test(nist_check_can_fail),
 		cmocka_unit_test(corrected_limit_shape),
 		cmocka_unit_test(pvalue_vs_gsl),
+		cmocka_unit_test(pvalue_huge_nu),
 		cmocka_unit_test(alpha_argument_errors),
 		cmocka_unit_test(alarm_vs_reference),
 		cmocka_unit_test(alarm_init_errors),

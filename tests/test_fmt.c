@@ -141,6 +141,49 @@ static void test_fmt_random(void **state)
 	gsl_rng_free(r);
 }
 
+/* qw_fmt_f6_memo against printf on streams of times as a replay writes
+ * them: rows 0.1 s apart (the seconds repeat ten times, then carry,
+ * including a carry from the fraction: ...9999995 rounds up), jumps back
+ * and forth, a sign change with the same whole part, and values that go
+ * to snprintf; every row after the first may reuse the memo. */
+static void check_f6_memo(struct qw_fmt_whole *m, double v)
+{
+	char a[QW_FMT_MAX], b[QW_FMT_MAX];
+	size_t n = qw_fmt_f6_memo(a, v, m);
+
+	snprintf(b, sizeof b, "%.6f", v);
+	if (strcmp(a, b) != 0 || n != strlen(b))
+		fail_msg("memo %%.6f of %a: '%s', printf '%s'", v, a, b);
+}
+
+static void test_fmt_f6_memo(void **state)
+{
+	static const double jumps[] = {
+		1700000000.9999995, 1700000001.0, 1700000000.5, 5.5, -5.5,
+		5.25, 1e300, 5.125, NAN, 5.0, -0.0, 0.0, 4.4e15, 4.4e15 + 1,
+		12.0000005, 12.9999996, 13.0, 9999999999.9999995,
+	};
+	struct qw_fmt_whole m;
+	gsl_rng *r = gsl_rng_alloc(gsl_rng_mt19937);
+	size_t i;
+
+	(void)state;
+	memset(&m, 0, sizeof m);
+	for (i = 0; i < 100000; i++)
+		check_f6_memo(&m, 1700000000.0 + 0.1 * (double)i);
+	for (i = 0; i < sizeof jumps / sizeof jumps[0]; i++)
+		check_f6_memo(&m, jumps[i]);
+	gsl_rng_set(r, FMT_SEED);
+	for (i = 0; i < FMT_CASES; i++) {
+		double v = rand_value(r);
+
+		if (!isnan(v))
+			check_f6_memo(&m, v);
+		check_f6_memo(&m, 1700000000.0 + 1e3 * gsl_rng_uniform(r));
+	}
+	gsl_rng_free(r);
+}
+
 /* The checker can fail: a naive rounding (adding one half, truncating)
  * gets printf's round-half-even wrong on an exact tie. */
 static void test_fmt_broken(void **state)
@@ -158,6 +201,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(test_fmt_edges),
 		cmocka_unit_test(test_fmt_random),
+		cmocka_unit_test(test_fmt_f6_memo),
 		cmocka_unit_test(test_fmt_broken),
 	};
 

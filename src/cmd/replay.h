@@ -106,6 +106,7 @@ struct replay_group {
 	uint64_t lim_bits;
 	size_t lim_len;
 	char lim_txt[QW_FMT_MAX];
+	struct qw_fmt_whole t_whole; /* the time's seconds in the last row */
 };
 
 struct replay_opts {

@@ -98,7 +98,7 @@ static size_t rp_scores_row(char *row, const struct replay_scored *r)
 	const char *name = r->g->conf->name;
 	size_t n, ln = strlen(name), lt = strlen(r->top);
 
-	n = qw_fmt_f6(row, r->t);
+	n = qw_fmt_f6_memo(row, r->t, &r->g->t_whole);
 	row[n++] = ',';
 	memcpy(row + n, name, ln);
 	n += ln;

@@ -53,6 +53,9 @@
 #define FMT_LOG10_2_NUM12 1233 /* the same to 2^12, for bit lengths */
 #define FMT_LOG10_2_SHIFT12 12
 
+_Static_assert(QW_FMT_WHOLE_MAX >= FMT_RUN,
+	       "a memo's digits are copied FMT_RUN bytes at a time");
+
 static const double fmt_pow10[FMT_POW_MAX + 1] = {
 	1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11,
 	1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
@@ -246,7 +249,7 @@ size_t qw_fmt_g(char *buf, double v, int prec)
 	return fmt_layout(buf, o, dig + FMT_RUN - prec, prec, x);
 }
 
-size_t qw_fmt_f6(char *buf, double v)
+size_t qw_fmt_f6_memo(char *buf, double v, struct qw_fmt_whole *memo)
 {
 	double a = fabs(v), ip, m;
 	char dig[2 * FMT_RUN] = {0};
@@ -267,14 +270,31 @@ size_t qw_fmt_f6(char *buf, double v)
 	}
 	if (signbit(v))
 		buf[o++] = '-';
-	n = fmt_count_digits(whole);
-	fmt_digits(dig, whole, n);
-	memcpy(buf + o, dig + FMT_RUN - n, FMT_RUN);
-	o += (size_t)n;
+	if (memo != NULL && memo->len > 0 && memo->whole == whole) {
+		/* the digits were stored long ago: this copy does not wait
+		 * on the small stores of fmt_digits */
+		memcpy(buf + o, memo->txt, FMT_RUN);
+		o += memo->len;
+	} else {
+		n = fmt_count_digits(whole);
+		fmt_digits(dig, whole, n);
+		memcpy(buf + o, dig + FMT_RUN - n, FMT_RUN);
+		o += (size_t)n;
+		if (memo != NULL) {
+			memcpy(memo->txt, dig + FMT_RUN - n, FMT_RUN);
+			memo->len = (size_t)n;
+			memo->whole = whole;
+		}
+	}
 	buf[o++] = '.';
 	fmt_digits8(dig, (uint32_t)r);
 	memcpy(buf + o, dig + FMT_F_FRAC_SKIP, FMT_RUN);
 	o += FMT_F_DIGITS;
 	buf[o] = '\0';
 	return o;
+}
+
+size_t qw_fmt_f6(char *buf, double v)
+{
+	return qw_fmt_f6_memo(buf, v, NULL);
 }

@@ -71,9 +71,9 @@ static double pv_pow2_inv(double v)
 /* The continued fraction of I_x(a, b) without its prefactor (A&S 26.5.8),
  * which converges quickly for x < (a+1)/(a+b+2), by Wallis's recurrence
  * for its convergents A_n / B_n, one pair of terms (even, odd) a step,
- * after the equivalence
- * transformation that multiplies term n's partial denominator by D_n, the
- * denominator of its coefficient d_n = N_n / D_n, so the recurrence
+ * after the equivalence transformation that multiplies term n's partial
+ * denominator by D_n, the denominator of its coefficient d_n = N_n / D_n,
+ * so the recurrence
  *   A_n = D_{n-1} A_{n-1} + D_{n-2} N_{n-1} A_{n-2}   (B_n alike)
  * needs no division.  A and B are scaled by a power of two (exact) from
  * B one step before, so the scaling is off the chain of the recurrence;

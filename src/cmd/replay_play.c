@@ -58,16 +58,18 @@ static void rp_event(struct replay *rp, struct replay_group *g, double t,
 		rp->ev_keys[json_array_size(rp->events) - 1] = rp->key;
 }
 
-/* The summary's and the report's share of one scored reading. */
-static void rp_point(struct replay_group *g, const struct replay_scored *r,
-		     double pv)
+/* The summary's and the report's share of one scored reading (its
+ * p-value done). */
+static void rp_point(const struct replay_scored *r)
 {
+	struct replay_group *g = r->g;
+
 	if (g->strip.run != NULL)
 		qw_strip_add(&g->strip, r->t, r->q, r->limit, r->in_alarm,
 			     r->warm);
 	if (!r->warm || g->dg_failed)
 		return;
-	if (qw_digest_add(&g->dg, r->t, r->q, pv, r->dof == g->conf->p)
+	if (qw_digest_add(&g->dg, r->t, r->q, r->pv, r->dof == g->conf->p)
 	    != 0) {
 		g->dg_failed = 1;
 		qw_log(QW_LOG_ERROR, "group %s: out of memory: no tuning "
@@ -157,7 +159,7 @@ void qw_replay_scored_block(struct replay *rp, struct replay_scored *r,
 		r[i].pv = qw_limit_pvalue_memo(&r[i].g->pv_memo, r[i].q,
 					       r[i].dof, r[i].nu, r[i].scale);
 	for (i = 0; i < n; i++)
-		rp_point(r[i].g, &r[i], r[i].pv);
+		rp_point(&r[i]);
 	if (rp->scores != NULL)
 		rp_scores_rows(rp, r, n);
 }

@@ -111,19 +111,38 @@ def load():
     return open("/proc/loadavg").read().split()[0]
 
 
+def steal_seconds():
+    """CPU seconds the hypervisor has taken from this machine so far (all
+    CPUs: /proc/stat's steal column), or None where it is not counted."""
+    try:
+        with open("/proc/stat") as f:
+            cols = f.readline().split()
+        return int(cols[8]) / os.sysconf("SC_CLK_TCK")
+    except (OSError, IndexError, ValueError):
+        return None
+
+
 def time_replay(cfg, inp, scores, extra=()):
-    """Wall seconds of one replay."""
+    """(wall s, CPU s of the replay: user + system, steal s on the
+    machine meanwhile) of one replay.  On a virtual machine the wall time
+    includes what the hypervisor took (steal); the CPU time does not."""
     cmd = [QW, "replay", "-c", cfg, "--json", "-q"] + list(extra)
     if scores:
         cmd += ["--scores", scores]
     cmd.append(inp)
+    st0 = steal_seconds()
     t0 = time.monotonic()
-    r = subprocess.run(cmd, stdout=subprocess.DEVNULL,
-                       stderr=subprocess.PIPE, text=True)
+    pr = subprocess.Popen(cmd, stdout=subprocess.DEVNULL,
+                          stderr=subprocess.PIPE, text=True)
+    err = pr.stderr.read()
+    _, status, ru = os.wait4(pr.pid, 0)
     secs = time.monotonic() - t0
-    if r.returncode != 0:
-        sys.exit("replay failed: %s" % r.stderr)
-    return secs
+    pr.returncode = os.waitstatus_to_exitcode(status)
+    st1 = steal_seconds()
+    if pr.returncode != 0:
+        sys.exit("replay failed: %s" % err)
+    steal = st1 - st0 if st0 is not None and st1 is not None else float("nan")
+    return secs, ru.ru_utime + ru.ru_stime, steal
 
 
 def bench_replay(tmp, n, runs):
@@ -144,19 +163,32 @@ def bench_replay(tmp, n, runs):
              for name, path in (("capture", cap), ("csv", csv))
              for jobs in (1, 2) for sc in (None, out)]
     secs = [[] for _ in cases]
+    cpu = [[] for _ in cases]
+    steal = [[] for _ in cases]
     print("== replay: %d readings of p = %d, median of %d interleaved runs, "
           "load %s" % (n, P, runs, load()))
     for _ in range(runs):
         for k, (name, path, sc, jobs) in enumerate(cases):
             extra = ("-j%d" % jobs,) if jobs > 1 else ()
-            secs[k].append(time_replay(cfg, path, sc, extra))
-    print("%-8s %-4s %-8s %10s %14s %10s" % ("input", "-j", "scores", "s",
-                                             "readings/s", "MB/s"))
+            w, c, st = time_replay(cfg, path, sc, extra)
+            secs[k].append(w)
+            cpu[k].append(c)
+            steal[k].append(st / w)
+    print("%-8s %-4s %-8s %8s %12s %8s %8s %14s %8s" % (
+        "input", "-j", "scores", "s", "readings/s", "MB/s", "cpu s",
+        "readings/cpu-s", "steal"))
     for k, (name, path, sc, jobs) in enumerate(cases):
         s = statistics.median(secs[k])
+        c = statistics.median(cpu[k])
         mb = os.path.getsize(path) / 1e6
-        print("%-8s %-4d %-8s %10.3f %14.0f %10.1f" % (
-            name, jobs, "yes" if sc else "no", s, n / s, mb / s))
+        print("%-8s %-4d %-8s %8.3f %12.0f %8.1f %8.3f %14.0f %7.0f%%" % (
+            name, jobs, "yes" if sc else "no", s, n / s, mb / s, c, n / c,
+            100 * statistics.median(steal[k])))
+    print("(s: wall time; cpu s: the replay's user + system time, all its "
+          "threads; steal: CPU time the hypervisor took from the machine "
+          "during the run, as a share of the wall time, out of %d CPUs: "
+          "a run with much steal is slow on the wall clock for reasons "
+          "outside quadwatch)" % os.cpu_count())
     print("(load after: %s)" % load())
 
 

@@ -173,6 +173,7 @@ struct replay {
 	double *batch;               /* capture decode buffer */
 	size_t batch_len;            /* doubles */
 	uint64_t csv_bad;            /* malformed CSV rows in all files */
+	int interrupted;             /* the signal that stopped the inputs, 0 */
 	uint64_t unknown_topic;
 	uint64_t readings;           /* offered to detectors, all groups */
 	/* -j: the worker this is (0 in a serial run) and its bookkeeping */
@@ -296,5 +297,10 @@ int qw_replay_human(const struct replay *rp, FILE *f);
 
 /* replay_report.c */
 int qw_replay_report(const struct replay *rp, const char *path);
+
+/* replay.c: the number of the signal (SIGINT, SIGTERM) that asked the
+ * replay to stop, or 0.  The input loops look at it between records and
+ * rows (any thread); the figures then cover what was played. */
+int qw_replay_interrupted(void);
 
 #endif

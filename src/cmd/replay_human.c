@@ -172,6 +172,9 @@ int qw_replay_human(const struct replay *rp, FILE *f)
 	if (rp->events_dropped > 0)
 		fprintf(f, "alerts not listed: %llu\n",
 			(unsigned long long)rp->events_dropped);
+	if (rp->interrupted != 0)
+		fprintf(f, "interrupted: the figures above cover only the "
+			"readings played before the signal\n");
 	fprintf(f, "caution: readings that are correlated in time (slow "
 		"processes, oversampling)\n  raise more alarms than the "
 		"configured rate; the tuning figures above include\n  that "

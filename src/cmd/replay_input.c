@@ -210,10 +210,11 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	const struct qw_csvin_row *row;
 	uint64_t n = 0;
 	size_t i, k;
-	int rc, label;
+	int rc = 0, label;
 
 	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
-	while ((rc = qw_csvin_next(c, &row)) == 1) {
+	while (!qw_replay_interrupted() &&
+	       (rc = qw_csvin_next(c, &row)) == 1) {
 		for (i = 0; i < rp->cfg.ngroups; i++) {
 			struct replay_group *g = &rp->groups[i];
 			const struct replay_map *m = &rp->map[i];
@@ -347,7 +348,8 @@ static int rp_capture(struct replay *rp, const struct qw_input *in)
 		return QW_EXIT_FAIL;
 	}
 	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
-	while ((rc = qw_capture_reader_next(r, &rec)) == 1) {
+	while (!qw_replay_interrupted() &&
+	       (rc = qw_capture_reader_next(r, &rec)) == 1) {
 		rp_message(rp, rec);
 		rp->key.pos++;
 		if (++n % (RP_PROGRESS_CHECK / 64) == 0) {

@@ -164,7 +164,8 @@ static void *jobs_run(void *arg)
 	struct replay *w = arg;
 	int i, rc = 0;
 
-	for (i = 0; rc == 0 && i < w->o.ninputs; i++) {
+	for (i = 0; rc == 0 && i < w->o.ninputs && !qw_replay_interrupted();
+	     i++) {
 		w->input = (unsigned)i;
 		rc = qw_replay_input(w, w->o.inputs[i]);
 	}

@@ -296,6 +296,8 @@ static void rp_json_top(const struct replay *rp, json_t *o,
 	jset_u(o, "malformed_rows", rp->csv_bad);
 	jset_u(o, "unknown_topic", rp->unknown_topic);
 	jset_u(o, "events_dropped", rp->events_dropped);
+	json_object_set_new(o, "interrupted",
+			    json_boolean(rp->interrupted != 0));
 	if (rp->o.labels != NULL) {
 		rp_labels_sum(rp, &sum);
 		qw_labels_metrics(&sum, &m);

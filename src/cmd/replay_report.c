@@ -420,7 +420,12 @@ static void rp_head(FILE *f, const struct replay *rp)
 		rp_xml_text(f, rp->o.inputs[i]);
 		fputs("</code>", f);
 	}
-	fputs(".</p>\n<p class=\"note\">quadwatch is an advisory monitor, "
+	fputs(".</p>\n", f);
+	if (rp->interrupted != 0)
+		fputs("<p class=\"warn\">Interrupted: this report covers only "
+		      "the readings played before the replay was stopped.</p>\n",
+		      f);
+	fputs("<p class=\"note\">quadwatch is an advisory monitor, "
 	      "not a safety instrumented system: act on its alarms according "
 	      "to local codes and licensed practice.</p>\n", f);
 }

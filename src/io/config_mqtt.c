@@ -124,7 +124,7 @@ static int cfg_mqtt_broker(struct cfg_parse *ps, const char *s, size_t n,
 static int cfg_mqtt_url(struct cfg_parse *ps, const char *s, size_t n,
 			struct qw_mqtt_url *u)
 {
-	size_t skip = s[4] == 's' ? 8 : 7;
+	size_t skip;
 	const char *slash;
 	int rc;
 
@@ -132,6 +132,7 @@ static int cfg_mqtt_url(struct cfg_parse *ps, const char *s, size_t n,
 	if (!cfg_is_mqtt(s, n))
 		return cfg_bad(ps, "expected mqtt://HOST[:PORT]/TOPIC or "
 				   "mqtts://..., got '%.*s'", (int)n, s);
+	skip = s[4] == 's' ? 8 : 7; /* n >= 7: s[4] is in the value */
 	u->tls = skip == 8;
 	slash = memchr(s + skip, '/', n - skip);
 	if (slash == NULL)

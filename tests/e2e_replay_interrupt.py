@@ -18,7 +18,8 @@ arrives mid-stream.  Checks, each of which can fail:
   - on an idle pipe (the writer holds it open and writes nothing) the
     first signal leaves the replay waiting for the next record; closing
     the pipe then ends it with the summary and status 130, and a second
-    signal instead ends it at once (the default action: killed by it);
+    signal instead ends it at once (the default action: killed by it),
+    SIGTERM after SIGINT as well;
   - an uninterrupted replay says "interrupted": false, status 0."""
 import json
 import os
@@ -173,8 +174,8 @@ with open(ref_scores + ".html") as f:
     q.check("Interrupted" not in f.read(), "uninterrupted report marked")
 
 # Idle pipe: the first signal waits for the next record or the end.
-for second in (False, True):
-    sc = os.path.join(tmp, "idle_%d.csv" % second)
+for second in (None, signal.SIGINT, signal.SIGTERM):
+    sc = os.path.join(tmp, "idle_%d.csv" % (second or 0))
     pr, fo, fe = start(sc)
     started = [200, threading.Event()]
     idle = threading.Event()
@@ -186,12 +187,12 @@ for second in (False, True):
     time.sleep(0.5)
     q.check(pr.poll() is None, "idle pipe: the replay ended before its "
             "input did (%r)" % pr.returncode)
-    if second:
-        pr.send_signal(signal.SIGINT)
+    if second is not None:
+        pr.send_signal(second)
         out, err = finish(pr, fo, fe, 30)
         idle.set()
-        q.check(pr.returncode == -signal.SIGINT,
-                "second SIGINT: exit %r" % pr.returncode)
+        q.check(pr.returncode == -second, "%s after SIGINT: exit %r"
+                % (signal.Signals(second).name, pr.returncode))
     else:
         idle.set()
         out, err = finish(pr, fo, fe, 30)

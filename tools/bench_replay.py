@@ -135,6 +135,7 @@ def time_replay(cfg, inp, scores, extra=()):
     pr = subprocess.Popen(cmd, stdout=subprocess.DEVNULL,
                           stderr=subprocess.PIPE, text=True)
     err = pr.stderr.read()
+    pr.stderr.close()
     _, status, ru = os.wait4(pr.pid, 0)
     secs = time.monotonic() - t0
     pr.returncode = os.waitstatus_to_exitcode(status)

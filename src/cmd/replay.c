@@ -40,9 +40,19 @@
  * may store it and every thread read it. */
 static atomic_int rp_signal;
 
+/* Stores the signal and gives SIGINT and SIGTERM their default action
+ * back, so that a second of either ends the process (sigaction is
+ * async-signal-safe). */
 static void rp_on_signal(int sig)
 {
+	struct sigaction dfl;
+
 	atomic_store_explicit(&rp_signal, sig, memory_order_relaxed);
+	memset(&dfl, 0, sizeof dfl);
+	sigemptyset(&dfl.sa_mask);
+	dfl.sa_handler = SIG_DFL;
+	sigaction(SIGINT, &dfl, NULL);
+	sigaction(SIGTERM, &dfl, NULL);
 }
 
 int qw_replay_interrupted(void)
@@ -51,17 +61,19 @@ int qw_replay_interrupted(void)
 }
 
 /* SIGINT and SIGTERM stop the inputs; the handler runs once (a second
- * signal takes its default action), and interrupted reads and writes
- * restart (an input blocked on an idle pipe stops at its next record or
- * its end). */
+ * signal takes its default action), blocking the other signal while it
+ * runs, and interrupted reads and writes restart (an input blocked on an
+ * idle pipe stops at its next record or its end). */
 static int rp_signals(void)
 {
 	struct sigaction sa;
 
 	memset(&sa, 0, sizeof sa);
 	sigemptyset(&sa.sa_mask);
+	sigaddset(&sa.sa_mask, SIGINT);
+	sigaddset(&sa.sa_mask, SIGTERM);
 	sa.sa_handler = rp_on_signal;
-	sa.sa_flags = (int)(SA_RESETHAND | SA_RESTART);
+	sa.sa_flags = SA_RESTART;
 	return sigaction(SIGINT, &sa, NULL) || sigaction(SIGTERM, &sa, NULL);
 }
 

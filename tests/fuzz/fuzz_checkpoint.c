@@ -14,8 +14,9 @@
  * a payload the core accepts gives a detector that takes a reading
  * without a sanitizer report, and whose state survives get/set/get
  * unchanged.  Seeds: tests/fuzz/corpus/checkpoint/.  Run through
- * tools/fuzz, built from the loader and the core only:
- * fuzz-sources: src/io/checkpoint.c src/io/log.c src/core/alarm.c src/core/detector.c src/core/error.c src/core/ewcov.c src/core/explain.c src/core/limit.c
+ * tools/fuzz, linked against its archive of the codecs and the core (a
+ * list of sources here had fallen behind the core's files and no longer
+ * linked).
  */
 #include <math.h>
 #include <stdint.h>

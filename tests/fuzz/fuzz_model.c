@@ -12,7 +12,7 @@
  * length is the payload's less the metadata, and the metadata passes the
  * documented range checks (limit factor finite and > 0, alpha in (0, 1),
  * used and trimmed at most readings).  Seeds: tests/fuzz/corpus/model/.
- * fuzz-sources: src/io/model.c src/io/checkpoint.c src/io/log.c src/io/config.c src/io/config_bus.c src/io/config_group.c src/io/num.c src/core/alarm.c src/core/detector.c src/core/detector_state.c src/core/dynamics.c src/core/mewma.c src/core/error.c src/core/ewcov.c src/core/explain.c src/core/limit.c
+ * Linked against tools/fuzz's archive of the codecs and the core.
  */
 #include <math.h>
 #include <stdint.h>

@@ -2,8 +2,10 @@
  * for p = 4..128, beside a naive baseline that keeps the EW covariance as
  * a matrix and re-factors it with GSL every reading (what the rank-one
  * update avoids).  Each run is timed in BENCH_CHUNKS short chunks and
- * counts its median chunk; prints medians of BENCH_RUNS runs, their ratio
- * and quadwatch's best run.  A benchmark, not a test: no verdicts. */
+ * counts its median chunk; prints medians of BENCH_RUNS runs, their ratio,
+ * quadwatch's best run and, in the same runs, the sweep alone (the kernel
+ * the variants share) with its share of quadwatch's figure.  A benchmark,
+ * not a test: no verdicts. */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -112,6 +114,53 @@ static double run_kind(size_t p, const double *x, size_t n,
 	return median(v, m);
 }
 
+/* ns per reading of the sweep alone (qw_sweep, the fused score and
+ * rank-one update of sweep.c) between two factor buffers, with the
+ * detector's steady weight: the part of the core's figure that the
+ * kernel variants decide; the rest is the detector around it (screening,
+ * the mean, the limit, the alarm) and the floor's top-ups. */
+static double run_sweep(size_t p, const double *x, size_t n)
+{
+	size_t len = qw_packed_len(p), k, c, i, j, m, per;
+	double *L[2], *iL[2], *u = malloc(p * sizeof *u);
+	double *y = malloc(p * sizeof *y), w = 1.0 / 2000, cw = sqrt(1 - w);
+	double t0, sink = 0, v[BENCH_CHUNKS];
+	int cur = 0;
+
+	for (i = 0; i < 2; i++) {
+		L[i] = calloc(len, sizeof *L[i]);
+		iL[i] = malloc(p * sizeof *iL[i]);
+	}
+	for (j = 0; j < p; j++) {
+		L[0][qw_packed_col(p, j)] = 1.0;
+		iL[0][j] = 1.0;
+	}
+	m = n < BENCH_CHUNKS ? n : BENCH_CHUNKS;
+	per = n / m;
+	for (k = 0; k < 3000; k++, cur = !cur) {
+		memcpy(u, x + (k % BENCH_READINGS) * p, p * sizeof *u);
+		qw_sweep(L[cur], iL[cur], L[!cur], iL[!cur], p, u, y, w, cw, 0);
+	}
+	for (c = 0; c < m; c++) {
+		t0 = now_ns();
+		for (i = 0; i < per; i++, k++, cur = !cur) {
+			memcpy(u, x + (k % BENCH_READINGS) * p, p * sizeof *u);
+			sink += qw_sweep(L[cur], iL[cur], L[!cur], iL[!cur], p,
+					 u, y, w, cw, 0);
+		}
+		v[c] = (now_ns() - t0) / (double)per;
+	}
+	for (i = 0; i < 2; i++) {
+		free(L[i]);
+		free(iL[i]);
+	}
+	free(u);
+	free(y);
+	if (sink == 42.0)
+		puts("");
+	return median(v, m);
+}
+
 static double run_detector(size_t p, const double *x, size_t n)
 {
 	return run_kind(p, x, n, QW_DYN_NONE, QW_MODE_PLAIN);
@@ -208,12 +257,13 @@ int main(void)
 	       "sweep variant %s\n", BENCH_RUNS,
 	       qw_sweep_variant(QW_SWEEP_AVX512) ? "AVX-512" :
 	       qw_sweep_variant(QW_SWEEP_AVX2) ? "AVX2" : "portable");
-	printf("%5s %12s %14s %8s %14s %10s\n", "p", "quadwatch", "naive refactor",
-	       "ratio", "state bytes", "best run");
+	printf("%5s %12s %14s %8s %14s %10s %12s %7s\n", "p", "quadwatch",
+	       "naive refactor", "ratio", "state bytes", "best run",
+	       "sweep alone", "share");
 	for (i = 0; i < sizeof sizes / sizeof sizes[0]; i++) {
 		size_t p = sizes[i], n, nn;
 		double *x = readings(p), a[BENCH_RUNS], b[BENCH_RUNS];
-		double ma, mb, est = 0.6 * (double)(p * p) + 20;
+		double sw[BENCH_RUNS], ma, mb, ms, est = 0.6 * (double)(p * p) + 20;
 		struct qw_params par;
 		qw_detector *d;
 
@@ -221,16 +271,19 @@ int main(void)
 		nn = (size_t)(BENCH_TARGET_NS / (0.5 * (double)(p * p * p) + 200));
 		for (j = 0; j < BENCH_RUNS; j++) {
 			a[j] = run_detector(p, x, n);
+			sw[j] = run_sweep(p, x, n);
 			b[j] = run_naive(p, x, nn > 100 ? nn : 100);
 		}
 		ma = median(a, BENCH_RUNS);
 		mb = median(b, BENCH_RUNS);
+		ms = median(sw, BENCH_RUNS);
 		qw_params_default(&par, p);
 		d = qw_detector_alloc(&par);
 		/* median() sorted a: a[0] is the run least disturbed by
 		 * other work on a shared machine. */
-		printf("%5zu %12.1f %14.1f %7.1fx %14zu %10.1f\n", p, ma, mb,
-		       mb / ma, qw_detector_state_len(d), a[0]);
+		printf("%5zu %12.1f %14.1f %7.1fx %14zu %10.1f %12.1f %6.0f%%\n",
+		       p, ma, mb, mb / ma, qw_detector_state_len(d), a[0], ms,
+		       100.0 * ms / ma);
 		qw_detector_free(d);
 		free(x);
 	}

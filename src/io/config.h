@@ -88,7 +88,9 @@ struct qw_group_conf {
 struct qw_config {
 	char path[1024];                /* the file read */
 	struct qw_endpoint inputs[QW_CONFIG_MAX_INPUTS];
-	size_t ninputs;                 /* >= 1 */
+	size_t ninputs;                 /* ZeroMQ inputs: >= 1, or 0 when
+					   every input is MQTT (mqtt.ninputs
+					   >= 1) */
 	struct qw_endpoint alerts;      /* PUB */
 	struct qw_endpoint control;     /* REP; addr "" = no control socket */
 	double stats_every;             /* seconds between stats; 0 = never */

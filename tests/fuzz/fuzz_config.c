@@ -32,8 +32,11 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 	text[size] = '\0';
 	rc = qw_config_load_string(text, FUZZ_NAME, &cfg, err, sizeof err);
 	if (rc == 0) {
-		if (cfg.ngroups == 0 || cfg.ninputs == 0)
-			abort(); /* a loaded config has both */
+		/* A loaded config has groups and an input: ZeroMQ, or MQTT
+		 * only (then cfg.ninputs is 0). */
+		if (cfg.ngroups == 0 ||
+		    (cfg.ninputs == 0 && cfg.mqtt.ninputs == 0))
+			abort();
 		for (i = 0; i < cfg.ngroups; i++) {
 			if (qw_config_group(&cfg, cfg.groups[i].name) !=
 			    &cfg.groups[i])

@@ -204,6 +204,15 @@ static int rp_csv_map(struct replay *rp, struct qw_csvin *c,
 	return rp_csv_labels(rp, c);
 }
 
+/* qw_replay_stop before the next row, with the bytes read when -j
+ * workers compare their progress. */
+static int rp_csv_stop(struct replay *rp, const struct qw_csvin *c)
+{
+	if (rp->jobs != NULL && rp->key.pos % RP_PACE_EVERY == 0)
+		qw_csvin_progress(c, &rp->cur_done, &rp->cur_total);
+	return qw_replay_stop(rp, rp->key.pos);
+}
+
 /* Every row to every mapped group.  0 or QW_EXIT_FAIL. */
 static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 {
@@ -213,8 +222,7 @@ static int rp_csv_rows(struct replay *rp, struct qw_csvin *c)
 	int rc = 0, label;
 
 	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
-	while (!qw_replay_interrupted() &&
-	       (rc = qw_csvin_next(c, &row)) == 1) {
+	while (!rp_csv_stop(rp, c) && (rc = qw_csvin_next(c, &row)) == 1) {
 		for (i = 0; i < rp->cfg.ngroups; i++) {
 			struct replay_group *g = &rp->groups[i];
 			const struct replay_map *m = &rp->map[i];
@@ -333,6 +341,15 @@ static void rp_message(struct replay *rp, const struct qw_capture_rec *rec)
 	}
 }
 
+/* qw_replay_stop before the next record (as rp_csv_stop). */
+static int rp_capture_stop(struct replay *rp,
+			   const struct qw_capture_reader *r)
+{
+	if (rp->jobs != NULL && rp->key.pos % RP_PACE_EVERY == 0)
+		qw_capture_reader_progress(r, &rp->cur_done, &rp->cur_total);
+	return qw_replay_stop(rp, rp->key.pos);
+}
+
 static int rp_capture(struct replay *rp, const struct qw_input *in)
 {
 	struct qw_capture_reader *r = NULL;
@@ -348,7 +365,7 @@ static int rp_capture(struct replay *rp, const struct qw_input *in)
 		return QW_EXIT_FAIL;
 	}
 	rp->key.pos = (uint64_t)rp->input << RP_KEY_INPUT_SHIFT;
-	while (!qw_replay_interrupted() &&
+	while (!rp_capture_stop(rp, r) &&
 	       (rc = qw_capture_reader_next(r, &rec)) == 1) {
 		rp_message(rp, rec);
 		rp->key.pos++;

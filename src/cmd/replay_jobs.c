@@ -13,6 +13,22 @@
  * order.  Counters that every worker sees alike (malformed rows, unknown
  * topics) come from the first; messages too.
  *
+ * Interruption.  Each worker sees the signal at its own place in the
+ * inputs; stopping each there would leave the groups covering different
+ * spans of the stream.  So a worker that sees it parks: it posts the
+ * position it reached and waits until every worker has posted one (a
+ * worker that has played all its inputs posts the end); the cut is the
+ * furthest, and those behind play on to it.  The merged output is then
+ * the serial run's up to the cut, a row or record boundary.  So that
+ * those behind are never far behind (a worker with light groups would
+ * otherwise run ahead, even finish, and the cut would be the end), a
+ * worker posts its position every RP_PACE_EVERY rows or records and waits
+ * while it has read more than RP_PACE_BYTES of the input beyond the
+ * slowest, or is in a later input: the run takes as long as its slowest
+ * worker anyway, and the one behind reaches the cut within some
+ * milliseconds.  Bytes, not rows or records, since a record may hold one
+ * reading or thousands.
+ *
  * Workload: reading and CSV parsing are done by every worker, the
  * detectors (the bulk at p >= 8) are split; the merge is one pass over
  * the tagged rows.  Memory per worker: decode and alert buffers, the
@@ -21,6 +37,7 @@
 #include <stdatomic.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 #include "cmd.h"
 #include "log.h"
@@ -38,6 +55,12 @@ struct replay_jobs {
 	unsigned n;
 	struct replay *w;              /* n worker contexts */
 	_Atomic uint64_t *readings;    /* n: published by each worker */
+	_Atomic uint64_t *at;          /* n: the position each has reached
+					  (now and then; where it parked;
+					  RP_POS_END: all its inputs done) */
+	_Atomic uint64_t *bytes;       /* n: bytes each has read of its
+					  input, as at was posted */
+	atomic_uint parked;            /* workers parked or done */
 	pthread_t *th;
 	int *rc;
 };
@@ -70,6 +93,80 @@ uint64_t qw_replay_jobs_readings(const struct replay *rp)
 		sum += atomic_load_explicit(&rp->jobs->readings[i],
 					    memory_order_relaxed);
 	return sum;
+}
+
+#define RP_POS_END UINT64_MAX
+#define RP_PARK_NAP_NS 100000L /* 0.1 ms between looks at the others */
+#define RP_PACE_BYTES (4u << 20) /* input a worker may read ahead */
+
+/* 1 while worker w, at pos with done bytes of its input read, is too far
+ * ahead of worker k. */
+static int jobs_ahead(const struct replay_jobs *j, unsigned k, uint64_t pos,
+		      uint64_t done)
+{
+	uint64_t at = atomic_load_explicit(&j->at[k], memory_order_acquire);
+	uint64_t in = pos >> RP_KEY_INPUT_SHIFT;
+
+	if (at == RP_POS_END)
+		return 0;
+	if ((at >> RP_KEY_INPUT_SHIFT) != in)
+		return (at >> RP_KEY_INPUT_SHIFT) < in;
+	return done > atomic_load_explicit(&j->bytes[k], memory_order_relaxed) +
+		      RP_PACE_BYTES;
+}
+
+/* Posts worker w's position and waits while it leads the slowest by too
+ * much (not once a signal has come: then it parks). */
+static void jobs_pace(struct replay *w, uint64_t pos)
+{
+	struct replay_jobs *j = w->jobs;
+	const struct timespec nap = {0, RP_PARK_NAP_NS};
+	uint64_t done = w->cur_done;
+	unsigned k;
+
+	atomic_store_explicit(&j->bytes[w->wid], done, memory_order_relaxed);
+	atomic_store_explicit(&j->at[w->wid], pos, memory_order_release);
+	for (k = 0; k < j->n; k++)
+		while (k != w->wid && jobs_ahead(j, k, pos, done) &&
+		       !qw_replay_interrupted())
+			nanosleep(&nap, NULL);
+}
+
+/* Worker w posts pos and, unless it is done (pos = RP_POS_END), waits
+ * for every other worker to post, then takes the furthest as its cut. */
+static void jobs_park(struct replay *w, uint64_t pos)
+{
+	struct replay_jobs *j = w->jobs;
+	const struct timespec nap = {0, RP_PARK_NAP_NS};
+	uint64_t at, cut = 0;
+	unsigned k;
+
+	atomic_store(&j->at[w->wid], pos);
+	atomic_fetch_add(&j->parked, 1);
+	w->parked = 1;
+	if (pos == RP_POS_END)
+		return;
+	while (atomic_load(&j->parked) < j->n)
+		nanosleep(&nap, NULL);
+	for (k = 0; k < j->n; k++) {
+		at = atomic_load(&j->at[k]);
+		if (at > cut)
+			cut = at;
+	}
+	w->cut = cut;
+}
+
+int qw_replay_stop(struct replay *rp, uint64_t pos)
+{
+	if (rp->jobs != NULL && !rp->parked && pos % RP_PACE_EVERY == 0)
+		jobs_pace(rp, pos);
+	if (!qw_replay_interrupted())
+		return 0;
+	if (rp->jobs == NULL)
+		return 1;
+	if (!rp->parked)
+		jobs_park(rp, pos);
+	return pos >= rp->cut;
 }
 
 static int key_less(const struct replay_key *a, const struct replay_key *b)
@@ -136,6 +233,8 @@ static int jobs_worker_init(struct replay_jobs *j, unsigned k)
 	w->wid = k;
 	w->jobs = j;
 	w->readings = w->csv_bad = w->unknown_topic = w->events_dropped = 0;
+	w->parked = 0;
+	w->cut = 0;
 	w->progress = m->progress && k == 0;
 	for (i = 0; i < m->cfg.ngroups; i++)
 		if (m->cfg.groups[i].p > maxp)
@@ -164,11 +263,16 @@ static void *jobs_run(void *arg)
 	struct replay *w = arg;
 	int i, rc = 0;
 
-	for (i = 0; rc == 0 && i < w->o.ninputs && !qw_replay_interrupted();
-	     i++) {
+	for (i = 0; rc == 0 && i < w->o.ninputs; i++) {
+		w->cur_done = 0; /* of input i, for the pace */
+		if (qw_replay_stop(w, (uint64_t)i << RP_KEY_INPUT_SHIFT))
+			break;
 		w->input = (unsigned)i;
 		rc = qw_replay_input(w, w->o.inputs[i]);
 	}
+	/* Done (or failed): nobody waits for this worker to park. */
+	if (!w->parked)
+		jobs_park(w, RP_POS_END);
 	qw_replay_jobs_publish(w);
 	w->jobs->rc[w->wid] = rc;
 	return NULL;
@@ -294,9 +398,13 @@ int qw_replay_jobs(struct replay *rp)
 	j.n = rp->o.jobs;
 	j.w = calloc(j.n, sizeof *j.w);
 	j.readings = calloc(j.n, sizeof *j.readings);
+	j.at = calloc(j.n, sizeof *j.at);
+	j.bytes = calloc(j.n, sizeof *j.bytes);
 	j.th = calloc(j.n, sizeof *j.th);
 	j.rc = calloc(j.n, sizeof *j.rc);
-	if (j.w == NULL || j.readings == NULL || j.th == NULL || j.rc == NULL)
+	atomic_init(&j.parked, 0);
+	if (j.w == NULL || j.readings == NULL || j.at == NULL ||
+	    j.bytes == NULL || j.th == NULL || j.rc == NULL)
 		rc = QW_ERROR(QW_ENOMEM);
 	if (rc == 0)
 		jobs_assign(rp, j.n);
@@ -305,6 +413,12 @@ int qw_replay_jobs(struct replay *rp)
 	for (k = 0; rc == 0 && k < j.n; k++, started++)
 		if (pthread_create(&j.th[k], NULL, jobs_run, &j.w[k]) != 0)
 			rc = QW_ERROR(QW_ENOMEM);
+	/* Workers that never started count as done, so no parked one
+	 * waits for them. */
+	for (k = started; j.at != NULL && k < j.n; k++) {
+		atomic_store(&j.at[k], RP_POS_END);
+		atomic_fetch_add(&j.parked, 1);
+	}
 	for (k = 0; k < started; k++)
 		pthread_join(j.th[k], NULL);
 	if (rc != 0) {
@@ -327,6 +441,8 @@ int qw_replay_jobs(struct replay *rp)
 			jobs_worker_free(&j.w[k]);
 	free(j.w);
 	free(j.readings);
+	free(j.at);
+	free(j.bytes);
 	free(j.th);
 	free(j.rc);
 	return rc;

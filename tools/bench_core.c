@@ -123,7 +123,9 @@ static double run_sweep(size_t p, const double *x, size_t n)
 {
 	size_t len = qw_packed_len(p), k, c, i, j, m, per;
 	double *L[2], *iL[2], *u = malloc(p * sizeof *u);
-	double *y = malloc(p * sizeof *y), w = 1.0 / 2000, cw = sqrt(1 - w);
+	/* the steady weight of half_life = 2000 readings, as run_kind */
+	double *y = malloc(p * sizeof *y), w = -expm1(-M_LN2 / 2000);
+	double cw = sqrt(1 - w);
 	double t0, sink = 0, v[BENCH_CHUNKS];
 	int cur = 0;
 
@@ -263,7 +265,8 @@ int main(void)
 	for (i = 0; i < sizeof sizes / sizeof sizes[0]; i++) {
 		size_t p = sizes[i], n, nn;
 		double *x = readings(p), a[BENCH_RUNS], b[BENCH_RUNS];
-		double sw[BENCH_RUNS], ma, mb, ms, est = 0.6 * (double)(p * p) + 20;
+		double sw[BENCH_RUNS], ma, mb, ms;
+		double est = 0.6 * (double)(p * p) + 20;
 		struct qw_params par;
 		qw_detector *d;
 

@@ -240,11 +240,12 @@ void qw_replay_jobs_row(struct replay *rp, const struct replay_key *key,
 void qw_replay_jobs_publish(struct replay *rp);
 uint64_t qw_replay_jobs_readings(const struct replay *rp);
 /* 1 when the inputs stop before the row or record at position pos (a
- * replay_key's pos), cur_done the bytes of the input read so far.  In a serial run: once a signal has come
- * (qw_replay_interrupted).  With -j the workers first agree on one cut,
- * the furthest position any of them had reached when it saw the signal,
- * and each plays on to it: an interrupted run covers the same rows of
- * every group, the serial run's first rows. */
+ * replay_key's pos; rp->cur_done the bytes of that input read so far).
+ * In a serial run: once a signal has come (qw_replay_interrupted).  With
+ * -j the workers first agree on one cut, the furthest position any of
+ * them had reached when it saw the signal, and each plays on to it: an
+ * interrupted run covers the same rows of every group, the serial run's
+ * first rows. */
 int qw_replay_stop(struct replay *rp, uint64_t pos);
 /* Rows or records between two looks at the other workers' progress (-j):
  * the input loops refresh cur_done before such a call. */

@@ -151,6 +151,18 @@ static void pvalue_vs_gsl(void **st)
 	assert_true(qwt_reldiff(qw_pvalue_f(NULL, 1.0319853191930152e-05, 1,
 					    300000.0),
 				0.07848805967914077, 0) < 1e-9);
+	/* Both sides of the odd-dof switch from the series to the fraction
+	 * in the upper tail (pvalue.c, PV_SERIES_PMIN = 1e-3), and a point
+	 * of the near tail, against scipy 1.10.1's stats.f.sf(u * d2 / 5, 5,
+	 * d2), u = q / nu, nu = 2885.4, d2 = nu - 4 (computed for this
+	 * test): q = 8 (P 0.157, series), 19 (P 0.00199, series), 21
+	 * (P 0.00084, fraction). */
+	assert_true(qwt_reldiff(qw_limit_pvalue(8.0, 5, 2885.4, 1.0),
+				0.15723007750184104, 0) < 1e-11);
+	assert_true(qwt_reldiff(qw_limit_pvalue(19.0, 5, 2885.4, 1.0),
+				0.0019881001193778162, 0) < 1e-11);
+	assert_true(qwt_reldiff(qw_limit_pvalue(21.0, 5, 2885.4, 1.0),
+				0.0008439296589898419, 0) < 1e-11);
 	assert_true(qw_limit_pvalue(0.0, 3, 50, 1.0) == 1.0);
 	assert_true(qw_limit_pvalue(-1.0, 3, 50, 1.0) == 1.0);
 	assert_true(qw_limit_pvalue(NAN, 3, 50, 1.0) == 1.0);

@@ -4,7 +4,9 @@
 Replay: one group of p = 16 channels, N readings, as a CSV (values printed
 as a data-acquisition program logs them, 6 significant digits) and as a
 capture (the `record` format, binary QWB1 batches of 64).  Each input is
-replayed with and without --scores, on one core and with -j2; the figure
+replayed with and without --scores, on one core and with -j2, and a
+capture of the first 15 channels (odd p: the p-values' other form) on one
+core; the figure
 is the median of --runs interleaved rounds: readings/s, and MB/s of
 input.  The machine's load average is
 printed beside them: on a shared machine the figures are noisy.
@@ -159,26 +161,36 @@ def bench_replay(tmp, n, runs):
     cap = os.path.join(tmp, "r.qwc")
     write_csv(csv, t, x)
     write_capture(cap, "g16", t, x)
+    # the same at an odd p (P - 1), whose p-values take another form
+    # (src/core/pvalue.c): capture, one core
+    cfg_odd = os.path.join(tmp, "r15.ini")
+    with open(cfg_odd, "w") as f:
+        f.write(group_ini("g15", P - 1))
+    cap_odd = os.path.join(tmp, "r15.qwc")
+    write_capture(cap_odd, "g15", t, x[:, :P - 1])
     out = os.path.join(tmp, "scores.csv")
-    cases = [(name, path, sc, jobs)
+    cases = [(name, cfg, path, sc, jobs)
              for name, path in (("capture", cap), ("csv", csv))
              for jobs in (1, 2) for sc in (None, out)]
+    cases += [("cap p%d" % (P - 1), cfg_odd, cap_odd, sc, 1)
+              for sc in (None, out)]
     secs = [[] for _ in cases]
     cpu = [[] for _ in cases]
     steal = [[] for _ in cases]
-    print("== replay: %d readings of p = %d, median of %d interleaved runs, "
-          "load %s" % (n, P, runs, load()))
+    print("== replay: %d readings of p = %d (and a capture of p = %d), "
+          "median of %d interleaved runs, load %s"
+          % (n, P, P - 1, runs, load()))
     for _ in range(runs):
-        for k, (name, path, sc, jobs) in enumerate(cases):
+        for k, (name, c_ini, path, sc, jobs) in enumerate(cases):
             extra = ("-j%d" % jobs,) if jobs > 1 else ()
-            w, c, st = time_replay(cfg, path, sc, extra)
+            w, c, st = time_replay(c_ini, path, sc, extra)
             secs[k].append(w)
             cpu[k].append(c)
             steal[k].append(st / w)
     print("%-8s %-4s %-8s %8s %12s %8s %8s %14s %8s" % (
         "input", "-j", "scores", "s", "readings/s", "MB/s", "cpu s",
         "readings/cpu-s", "steal"))
-    for k, (name, path, sc, jobs) in enumerate(cases):
+    for k, (name, _, path, sc, jobs) in enumerate(cases):
         s = statistics.median(secs[k])
         c = statistics.median(cpu[k])
         mb = os.path.getsize(path) / 1e6

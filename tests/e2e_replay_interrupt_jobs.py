@@ -53,35 +53,49 @@ def rows_of(path):
         return f.read().splitlines()
 
 
-ref_sc = os.path.join(tmp, "ref.csv")
-t0 = time.monotonic()
-r = subprocess.run(replay(big, ref_sc), capture_output=True, text=True)
-serial_s = time.monotonic() - t0
-q.check(r.returncode == 0, "serial replay: %d %s" % (r.returncode, r.stderr))
-ref = json.loads(r.stdout)
-ref_rows = rows_of(ref_sc)
+def serial(inp, tag):
+    """The uninterrupted serial replay of inp: (summary, --scores rows,
+    wall seconds)."""
+    sc = os.path.join(tmp, tag + "_ref.csv")
+    t0 = time.monotonic()
+    r = subprocess.run(replay(inp, sc), capture_output=True, text=True)
+    secs = time.monotonic() - t0
+    q.check(r.returncode == 0, "%s: serial replay: %d %s"
+            % (tag, r.returncode, r.stderr))
+    return json.loads(r.stdout), rows_of(sc), secs
+
+
+def interrupted(inp, tag, total, serial_s):
+    """replay -j2 of inp sent SIGINT a third of the serial time in (sooner
+    on each retry if it had ended first): (summary, --scores rows, the
+    delay).  Exit 130, "interrupted" true, stopped mid-way."""
+    delay = serial_s / 3
+    for attempt in range(4):
+        sc = os.path.join(tmp, "%s_int%d.csv" % (tag, attempt))
+        pr = subprocess.Popen(replay(inp, sc, ("-j2",)),
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        time.sleep(delay)
+        pr.send_signal(signal.SIGINT)
+        out, err = pr.communicate(timeout=120)
+        q.check(pr.returncode == 130, "%s -j2 SIGINT: exit %d (%s)"
+                % (tag, pr.returncode, err.decode()))
+        s = json.loads(out)
+        q.check(s["interrupted"] is True, "%s -j2: interrupted %r"
+                % (tag, s["interrupted"]))
+        if s["readings"] < total:
+            break
+        q.note("%s attempt %d: the replay ended before the signal "
+               "(%.2f s); sooner" % (tag, attempt, delay))
+        delay /= 3
+    q.check(0 < s["readings"] < total, "%s -j2: never stopped mid-way "
+            "(%d of %d)" % (tag, s["readings"], total))
+    return s, rows_of(sc), delay
+
+
+ref, ref_rows, serial_s = serial(big, "csv")
 total = ref["readings"]
 q.check(total == 2 * ROWS, "serial readings %d" % total)
-
-delay = serial_s / 3
-for attempt in range(4):
-    sc = os.path.join(tmp, "int%d.csv" % attempt)
-    pr = subprocess.Popen(replay(big, sc, ("-j2",)), stdout=subprocess.PIPE,
-                          stderr=subprocess.PIPE)
-    time.sleep(delay)
-    pr.send_signal(signal.SIGINT)
-    out, err = pr.communicate(timeout=120)
-    q.check(pr.returncode == 130, "-j2 SIGINT: exit %d (%s)"
-            % (pr.returncode, err.decode()))
-    s = json.loads(out)
-    q.check(s["interrupted"] is True, "-j2: interrupted %r" % s["interrupted"])
-    if s["readings"] < total:
-        break
-    q.note("attempt %d: the replay ended before the signal (%.2f s); "
-           "sooner" % (attempt, delay))
-    delay /= 3
-q.check(0 < s["readings"] < total, "-j2: never stopped mid-way (%d of %d)"
-        % (s["readings"], total))
+s, rows, delay = interrupted(big, "csv", total, serial_s)
 q.check(s["readings"] % 2 == 0, "-j2: %d readings, not a whole number of "
         "rows of the two groups" % s["readings"])
 cut = s["readings"] // 2
@@ -89,7 +103,6 @@ per = {name: g["readings"] for name, g in s["groups"].items()}
 q.check(sorted(per.values()) == [cut, cut],
         "-j2: the groups stopped at different rows: %r" % per)
 
-rows = rows_of(sc)
 q.check(len(rows) > 1 and rows == ref_rows[:len(rows)],
         "-j2: the rows are not the serial run's first rows (%d rows)"
         % len(rows))
@@ -143,35 +156,14 @@ with open(cap, "wb") as f:
                 a.tobytes()
             f.write(q.capture_bytes([(t[0], name, payload)])[len(header):])
 
-ref_sc = os.path.join(tmp, "cref.csv")
-t0 = time.monotonic()
-r = subprocess.run(replay(cap, ref_sc), capture_output=True, text=True)
-serial_s = time.monotonic() - t0
-q.check(r.returncode == 0, "serial capture replay: %s" % r.stderr)
-ref = json.loads(r.stdout)
-ref_rows = rows_of(ref_sc)
+ref, ref_rows, serial_s = serial(cap, "capture")
 total = ref["readings"]
 q.check(total == REC * BLOCK, "capture: %d readings" % total)
-delay = serial_s / 3
-for attempt in range(4):
-    sc = os.path.join(tmp, "cint%d.csv" % attempt)
-    pr = subprocess.Popen(replay(cap, sc, ("-j2",)), stdout=subprocess.PIPE,
-                          stderr=subprocess.PIPE)
-    time.sleep(delay)
-    pr.send_signal(signal.SIGINT)
-    out, err = pr.communicate(timeout=120)
-    q.check(pr.returncode == 130, "capture -j2 SIGINT: exit %d (%s)"
-            % (pr.returncode, err.decode()))
-    s = json.loads(out)
-    if s["readings"] < total:
-        break
-    delay /= 3
-q.check(0 < s["readings"] < total, "capture -j2: never stopped mid-way")
+s, rows, _ = interrupted(cap, "capture", total, serial_s)
 per = {name: g["readings"] for name, g in s["groups"].items()}
 # The cut is a record: the chiller may have one record more.
 q.check(per["chiller"] - per["pump_skid"] in (0, BLOCK),
         "capture -j2: the groups stopped apart: %r" % per)
-rows = rows_of(sc)
 q.check(len(rows) > 1 and rows == ref_rows[:len(rows)],
         "capture -j2: the rows are not the serial run's first rows")
 q.note("capture -j2 interrupted after %d of %d readings: %r"

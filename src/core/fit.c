@@ -49,9 +49,34 @@
  * tail trims isolated readings, a fault that lasts trims a run.  Bad
  * readings that come alone stay in, and raise the factor.
  *
+ * A group that loads the model warm goes on learning with its own
+ * forgetting, and its scores are not the fixed model's: a plant that
+ * drifts widens a model fitted over the whole recording (the fixed chart
+ * needs a large factor), while the adaptive chart follows the drift but
+ * estimates its covariance from a short, autocorrelated window (often a
+ * small factor, above or below 1).  So the fit also runs the group's
+ * adaptive chart itself over the recording from nothing, exactly as
+ * replay would: every reading is scored before it is learned, so after
+ * warm-up its scores are out of sample without any split.  The same tail
+ * fit of those scores over the limit in force gives the factor a warm
+ * group applies (adapt_factor), iterated to a fixed point since the
+ * factor changes what the chart learns (fit_adaptive); the last run
+ * counts the raises it gives.  Bad stretches are not simply left out
+ * here: those the fixed fit trims on a healthy plant are mostly its far
+ * operating points, where the adaptive chart's own tail events are (on
+ * the demo plant, leaving every bad stretch out doubled to tripled the
+ * alarms delivered on fresh days).  Only the bad stretches that the
+ * adaptive chart also finds far out for most of their length are left
+ * out, as faults (fit_mark_faults).  Both
+ * factors set a per-reading exceedance probability; a run of exceedances
+ * raises one alarm, so on autocorrelated scores fewer alarms than
+ * exceedances come, and the configured rate is an upper bound as far as
+ * the tail fit holds.
+ *
  * Workload: a recording held in memory (n readings of p channels); each
  * stage pass costs one detector pass over its readings, a handful of
- * passes per stage; memory n (2 doubles + 1 byte) beside the recording. */
+ * passes per stage, and the adaptive chart two more; memory n (2
+ * doubles + 1 byte) beside the recording. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -72,6 +97,15 @@
  * with probability ~t^5 (2e-4 even at t = 0.18, a t(5) process's share),
  * so a genuine heavy tail keeps its readings; a fault that lasts is cut. */
 #define FIT_BAD_RUN 5
+/* The adaptive chart's factor is iterated until a run with it finds its
+ * own tail within this of it (a 0.5% change of the limit moves the rate
+ * by a few per cent at most), in at most FIT_ADAPT_ITER runs. */
+#define FIT_ADAPT_TOL 0.005
+#define FIT_ADAPT_ITER 8
+/* A bad stretch is a fault for the adaptive chart when at least this
+ * share of its readings are over that chart's Gaussian limit
+ * (fit_mark_faults). */
+#define FIT_FAULT_SHARE 0.5
 #define FIT_DEF_TAIL_FRACTION 0.05 /* top 5% of held-out scores: above a
 				    high quantile, yet >= 50 excesses from
 				    1000 held-out readings */
@@ -350,6 +384,137 @@ static int fit_limit(struct fit_work *w, const struct qw_params *par,
 	return 0;
 }
 
+/* One run of the group's own adaptive chart (par, limits times f) over
+ * the n readings from nothing, as the group itself would run: each
+ * reading is scored, then learned by the group's rule.  The scores of
+ * readings on all channels after warm-up and not flagged in skip (NULL:
+ * none), each divided by the limit in force for it, go to z (*nz of
+ * them), and those readings' exceedances and raises to *ex and *alarms;
+ * over (when not NULL) gets 1 for each reading over its limit after
+ * warm-up, 0 for the others.  0 or QW_ENOMEM. */
+static int fit_adaptive_pass(struct fit_work *w, const struct qw_params *par,
+			     size_t n, double f, const unsigned char *skip,
+			     double *z, size_t *nz, uint64_t *ex,
+			     uint64_t *alarms, unsigned char *over)
+{
+	struct qw_params ap = *par;
+	struct qw_result res;
+	qw_detector *d;
+	size_t i;
+
+	ap.limit_factor = f;
+	if ((d = qw_detector_alloc(&ap)) == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	*nz = 0;
+	*ex = *alarms = 0;
+	for (i = 0; i < n; i++) {
+		int warm = qw_detector_count(d) >= ap.warmup;
+
+		(void)qw_detector_add(d, w->t[i], w->x + i * w->p, &res);
+		if (over != NULL)
+			over[i] = (unsigned char)res.over;
+		if (!warm || !res.scored || res.dof != w->p ||
+		    !isfinite(res.q) || !(res.limit > 0) ||
+		    !isfinite(res.limit) || (skip != NULL && skip[i]))
+			continue;
+		z[(*nz)++] = res.q / res.limit;
+		*ex += (uint64_t)res.over;
+		*alarms += res.event == QW_EVENT_RAISE;
+	}
+	qw_detector_free(d);
+	return 0;
+}
+
+/* Faults inside the recording, for the adaptive chart: the bad stretches
+ * (w->bad) in which at least FIT_FAULT_SHARE of the readings were over
+ * the adaptive chart's own Gaussian limit (over[], from a run at factor
+ * 1).  A fault that lasts stays far out for both charts (a learn = skip
+ * chart does not learn it); a far operating point of a healthy plant,
+ * which the fixed fit trims in long runs, is mostly within the adaptive
+ * chart's limit, and its brief exceedances there are the chart's own
+ * tail, to be kept.  Marks them in over[] (rewritten: 1 = leave out of
+ * the tail) and returns the readings marked. */
+static uint64_t fit_mark_faults(const struct fit_work *w, size_t n,
+				unsigned char *over)
+{
+	size_t i, j, nover;
+	uint64_t marked = 0;
+	int fault;
+
+	for (i = 0; i < n; i = j) {
+		if (!w->bad[i]) {
+			over[i] = 0;
+			j = i + 1;
+			continue;
+		}
+		for (j = i, nover = 0; j < n && w->bad[j]; j++)
+			nover += over[j];
+		fault = (double)nover >= FIT_FAULT_SHARE * (double)(j - i);
+		memset(over + i, fault, j - i);
+		marked += fault ? j - i : 0;
+	}
+	return marked;
+}
+
+/* The adaptive chart's limit factor (r->adapt_*), to a fixed point: a
+ * run at the Gaussian limit gives the scores (z: n entries of scratch)
+ * and their tail, whose upper alpha quantile g rescales the factor; but
+ * the factor changes what a learn = skip group learns (a higher limit
+ * lets more of the tail in, widening the model), so the run is repeated
+ * with f times g until its own tail agrees (|g - 1| <= FIT_ADAPT_TOL).
+ * The counts are those of the run at the factor reported. */
+static int fit_adaptive(struct fit_work *w, const struct qw_params *par,
+			size_t n, double *z, struct qw_fit_result *r)
+{
+	struct qw_tail tail;
+	double f = 1.0, g;
+	uint64_t ex = 0, al = 0;
+	unsigned it;
+	size_t nz = 0;
+	int rc;
+
+	/* w->trim is free by now (fit_limit's folds are done): the faults */
+	if (r->bad_stretch > 0) {
+		if ((rc = fit_adaptive_pass(w, par, n, 1.0, NULL, z, &nz, &ex,
+					    &al, w->trim)) != 0)
+			return rc;
+		r->adapt_faults = fit_mark_faults(w, n, w->trim);
+	}
+	for (it = 0; it < FIT_ADAPT_ITER; it++) {
+		if ((rc = fit_adaptive_pass(w, par, n, f,
+					    r->adapt_faults ? w->trim : NULL,
+					    z, &nz, &ex, &al, NULL)) != 0)
+			return rc;
+		r->adapt_passes = it + 1;
+		r->adapt_factor = f;
+		r->adapt_ex_emp = ex;
+		r->adapt_alarms_emp = al;
+		if (it == 0) {
+			r->adapt_scored = nz;
+			r->adapt_days = (double)nz / par->rate /
+					QW_SECONDS_PER_DAY;
+			r->adapt_ex_gauss = ex;
+			r->adapt_alarms_gauss = al;
+		}
+		if (qw_tail_fit(z, nz, w->o->tail_fraction, &tail) != 0)
+			break;
+		g = qw_tail_quantile(&tail, r->alpha);
+		if (!(g > 0) || !isfinite(g))
+			break;
+		/* the tail in units of the Gaussian limit, as the factor */
+		r->adapt_tail_ok = 1;
+		r->adapt_gpd = tail.gpd;
+		r->adapt_gpd.sigma *= f;
+		r->adapt_tail_u = tail.u * f;
+		if (fabs(g - 1.0) <= FIT_ADAPT_TOL) {
+			r->adapt_converged = 1;
+			break;
+		}
+		f *= g;
+	}
+	return 0;
+}
+
 /* The fit's parameters (the group's, with no forgetting, every reading
  * learned, never out of warm-up) and buffers.  0 or QW_ENOMEM; the caller
  * frees with fit_work_free either way. */
@@ -425,6 +590,8 @@ int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 		res->bad_stretch = fit_mark_bad(&w, n);
 		rc = fit_limit(&w, par, n, w.z, res);
 	}
+	if (rc == 0)
+		rc = fit_adaptive(&w, par, n, w.z, res);
 	if (rc == 0) {
 		res->used = fin.used;
 		res->trimmed = fin.trimmed;

@@ -419,15 +419,35 @@ struct qw_fit_result {
 	double heldout_days;  /* heldout / rate / 86400 */
 	uint64_t ex_gauss, ex_emp;   /* held-out exceedances of each limit */
 	uint64_t alarms_gauss, alarms_emp; /* raised under the group's rule */
+	/* The group's adaptive chart (its own forgetting, learn policy and
+	 * warm-up) run over the whole recording from nothing: each reading
+	 * is scored before it is learned, so its scores are out of sample
+	 * (fit.c).  What a group loading the model warm multiplies its
+	 * limits by. */
+	double adapt_factor;  /* empirical / Gaussian (1 when no tail) */
+	int adapt_tail_ok;    /* enough scores for a tail fit */
+	struct qw_gpd adapt_gpd; /* of its scores / their limit */
+	double adapt_tail_u;  /* the threshold of that fit (limit units) */
+	uint64_t adapt_scored; /* its scores behind the tail: after
+				  warm-up, all channels, outside faults */
+	uint64_t adapt_faults; /* readings of bad stretches that it too
+				  found far out, left out (fit.c) */
+	double adapt_days;    /* adapt_scored / rate / 86400 */
+	uint64_t adapt_ex_gauss, adapt_ex_emp; /* its exceedances */
+	uint64_t adapt_alarms_gauss, adapt_alarms_emp; /* its raises, the
+				  second from the run with the factor */
+	unsigned adapt_passes; /* runs of the chart over the recording */
+	int adapt_converged;  /* the last run's tail agreed with its factor */
 };
 
 /* Fits the group par (any dynamics and mode) to the n readings t[i]
  * (seconds, non-decreasing), x[i*p .. i*p+p) (NaN = missing), which the
  * engineer calls healthy: a detector built from par with no forgetting
  * and learn = all learns them, iteratively trimming readings the fit finds
- * far out; two-fold held-out scores give the empirical limit.  *model
- * gets the final detector (frozen; the caller frees it), its limit factor
- * still 1.  QW_EINVAL for bad arguments, QW_ENODATA when too few readings
+ * far out; two-fold held-out scores give the empirical limit of the fixed
+ * model, and the group's adaptive chart run over the recording gives its
+ * own (adapt_*).  *model gets the final detector (frozen; the caller
+ * frees it), its limit factor still 1.  QW_EINVAL for bad arguments, QW_ENODATA when too few readings
  * are learnable, QW_ENOMEM. */
 int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	       size_t n, const struct qw_fit_opts *o, struct qw_fit_result *res,

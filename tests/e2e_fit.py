@@ -3,10 +3,12 @@
 stretches, is fitted (the stretches trimmed and kept out of the tail); the model file then drives `replay` and `check`
 through model = PATH, model_use = fixed | warm.  Checked:
   - fit prints readings/used/trimmed, both limits, and their ratio is the
-    limit factor; the trimmed count covers the bad stretches;
+    limit factor; the trimmed count covers the bad stretches, and the
+    adaptive chart's tail leaves them out as faults;
   - replay of a fresh heavy-tailed recording with the fixed model runs
     against the empirical limit (the group's limit_end), and with
-    model_use = warm too;
+    model_use = warm against the group's own limit times the adaptive
+    chart's factor (which fit prints, and check too);
   - a `record` capture of the same readings fits to the same model;
   - check prints the model lines;
   - a group with other channels, or a missing model file, is refused by
@@ -93,6 +95,14 @@ q.check(abs(le / lg - lf) < 1e-6 * lf, "ratio %g vs factor %g" % (le / lg, lf))
 q.check(lf > 1.2, "a t5 recording should need a larger limit: %g" % lf)
 q.check(250 <= int(f["bad_stretches"]) <= 400, "bad stretches: %s readings "
         "left out, 250 injected" % f["bad_stretches"])
+# the adaptive chart's own factor, for model_use = warm
+af = float(f["adaptive_factor"])
+q.check(af > 0 and int(f["adaptive_scored"]) > N_FIT // 2 and
+        int(f["adaptive_passes"]) >= 1, "adaptive lines: %r" % f)
+# the injected stretches are far out for the adaptive chart too: left out
+# of its tail as faults (a fault in its tail made the factor 86, not 12.6)
+q.check(240 <= int(f["adaptive_faults"]) <= 400, "adaptive faults: %s "
+        "readings left out, 250 injected" % f["adaptive_faults"])
 
 # the same recording as a `record` capture (binary QWB1 payloads, values
 # as the CSV holds them): the same fit
@@ -108,7 +118,8 @@ os.mkdir(cmodels)
 r = run("fit", "-c", base, "-q", "-o", cmodels, cap)
 q.check(r.returncode == 0, "fit of a capture: %s" % r.stderr)
 fc = kv(r.stdout)
-for k in ("readings", "used", "trimmed", "limit_gaussian", "limit_factor"):
+for k in ("readings", "used", "trimmed", "limit_gaussian", "limit_factor",
+          "adaptive_factor"):
     q.check(fc[k] == f[k], "capture vs CSV fit: %s %s vs %s" % (k, fc[k],
                                                                f[k]))
 
@@ -137,6 +148,22 @@ warm = os.path.join(tmp, "warm.ini")
 config(warm, model=path, model_use="warm")
 r = run("replay", "-c", warm, "--json", "-q", fresh_csv)
 q.check(r.returncode == 0, "replay warm failed: %s" % r.stderr)
+wlim = json.loads(r.stdout)["groups"]["skid"]["limit_end"]
+# warm applies the adaptive chart's factor, not the fixed model's: at
+# steady state its limit is the group's own (no model) times it
+r = run("replay", "-c", base, "--json", "-q", fresh_csv)
+q.check(r.returncode == 0, "replay without a model failed: %s" % r.stderr)
+clim = json.loads(r.stdout)["groups"]["skid"]["limit_end"]
+q.check(abs(wlim / clim - af) < 1e-6 * af, "warm limit %g / own limit %g = "
+        "%g, adaptive factor %g" % (wlim, clim, wlim / clim, af))
+r = run("check", "-c", warm)
+q.check(r.returncode == 0, "check warm failed: %s" % r.stderr)
+c = kv(r.stdout)
+q.check(abs(float(c["model_limit_factor"]) - af) < 1e-6 * af,
+        "check's warm factor %s, fit's adaptive %g" %
+        (c["model_limit_factor"], af))
+q.note("warm: limit %.6g = %.6g (own) x adaptive factor %.6g; the fixed "
+       "model's factor is %.6g" % (wlim, clim, af, lf))
 
 # the daemon with the fixed model: its limit is the fit's empirical one
 # and it learns nothing from the stream

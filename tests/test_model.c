@@ -4,11 +4,13 @@
  * Oracles: a file written from a fitted model decodes to the same
  * metadata and state bytes, and a group loading it with model_use =
  * fixed scores exactly like the fitted detector (frozen, same limit times
- * the fitted factor); warm is the same model, learning; every refusal is
- * provoked by a file crafted for it (truncated, a flipped bit, a
- * checkpoint that is not a model, another metadata version, an
- * impossible value, other channels, another dynamics or mode) and its
- * message names the file. */
+ * the fitted factor); warm is the same model, learning, its limit times
+ * the adaptive chart's factor; a version 1 file (no adaptive factor),
+ * built from the documented layout, still loads fixed and is refused
+ * warm; every refusal is provoked by a file crafted for it (truncated, a
+ * flipped bit, a checkpoint that is not a model, another metadata
+ * version, an impossible value, other channels, another dynamics or
+ * mode) and its message names the file. */
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
@@ -32,6 +34,7 @@
 #define MD_N 3000          /* readings fitted */
 #define MD_ERR 1024        /* bytes of a message */
 #define MD_FACTOR 1.2385   /* a limit factor to carry */
+#define MD_ADAPT 0.8765    /* an adaptive chart's factor to carry */
 
 struct md_fix {
 	char dir[64], path[128], ini[1024];
@@ -98,6 +101,10 @@ static int md_setup(void **st)
 	f->meta.smoothing = f->cfg.groups[0].params.smoothing;
 	f->meta.gpd_xi = NAN;
 	f->meta.gpd_sigma = NAN;
+	f->meta.adapt_factor = MD_ADAPT;
+	f->meta.adapt_scored = r.adapt_scored;
+	f->meta.adapt_gpd_xi = 0.125;
+	f->meta.adapt_gpd_sigma = NAN;
 	id.group = "rig";
 	id.fingerprint = qw_config_fingerprint(&f->cfg.groups[0]);
 	id.p = MD_P;
@@ -153,21 +160,44 @@ static void roundtrip(void **st)
 	assert_true(v.meta.trimmed == f->meta.trimmed);
 	assert_true(v.meta.alpha == f->meta.alpha);
 	assert_true(isnan(v.meta.gpd_xi));
+	assert_int_equal(v.meta.version, QW_MODEL_VERSION);
+	assert_true(v.meta.adapt_factor == MD_ADAPT);
+	assert_true(v.meta.adapt_scored == f->meta.adapt_scored);
+	assert_true(v.meta.adapt_gpd_xi == 0.125);
+	assert_true(isnan(v.meta.adapt_gpd_sigma));
 	assert_int_equal(v.state_len, slen);
 	qw_detector_state_get(f->fitted, s);
 	assert_memory_equal(v.state, s, slen);
 	free(s);
 }
 
+/* The fitted model as an adaptive group with no factor: the group's
+ * params, the state copied in, learning. */
+static qw_detector *md_adaptive(struct md_fix *f)
+{
+	size_t len = qw_detector_state_len(f->fitted);
+	void *buf = malloc(len);
+	qw_detector *d = qw_detector_alloc(&f->cfg.groups[0].params);
+
+	assert_non_null(buf);
+	assert_non_null(d);
+	qw_detector_state_get(f->fitted, buf);
+	assert_int_equal(qw_detector_state_set(d, buf, len), 0);
+	qw_detector_freeze(d, 0);
+	qw_detector_counters_reset(d);
+	free(buf);
+	return d;
+}
+
 /* fixed: the same scores, nothing learned, the limit times the factor;
- * warm: the same model, learning. */
+ * warm: the same model, learning, the limit times the adaptive factor. */
 static void loaded_groups(void **st)
 {
 	struct md_fix *f = *st;
 	struct qw_model_meta meta;
 	struct qw_result ra, rb;
 	char err[MD_ERR];
-	qw_detector *d = NULL;
+	qw_detector *d = NULL, *ref;
 	double x[MD_P];
 	uint64_t learned;
 	int i;
@@ -209,6 +239,12 @@ static void loaded_groups(void **st)
 	qw_detector_add_flags(f->fitted, 2e4, x, QW_ADD_NOLEARN, &rb);
 	assert_true(ra.q == rb.q); /* it starts from the fitted model */
 	assert_true(qw_detector_counters(d)->learned == learned + 1);
+	/* its limit is the adaptive chart's own times the adaptive factor */
+	ref = md_adaptive(f);
+	qw_detector_add(ref, 2e4, x, &rb);
+	assert_true(qwt_reldiff(qw_detector_limit(d),
+				MD_ADAPT * qw_detector_limit(ref), 0) < 1e-12);
+	qw_detector_free(ref);
 	qw_detector_free(d);
 	/* no model key: a fresh detector */
 	f->cfg.groups[0].model[0] = '\0';
@@ -275,6 +311,11 @@ static void refusals(void **st)
 	md_recrc(b, f->len);
 	md_write(f, b, f->len);
 	md_refused(f, QW_EFORMAT, "not a model file");
+	memcpy(b, f->file, f->len);
+	b[meta + 120 + 7] |= 0x80; /* adaptive factor negative */
+	md_recrc(b, f->len);
+	md_write(f, b, f->len);
+	md_refused(f, QW_EFORMAT, "not a model file");
 	/* the good file, other groups */
 	md_write(f, f->file, f->len);
 	md_config(f, "a, c, b", NULL);
@@ -287,6 +328,54 @@ static void refusals(void **st)
 	f->cfg.groups[0].params.dynamics = QW_DYN_NONE;
 	f->cfg.groups[0].params.mode = QW_MODE_MEWMA;
 	md_refused(f, QW_EMISMATCH, "mode = plain");
+	free(b);
+}
+
+/* A version 1 file (the layout before the adaptive factor: metadata to
+ * offset 120, then the state), made from this fit's metadata and state:
+ * it decodes with no adaptive factor, loads fixed with its limit factor,
+ * and a warm group refuses it, saying what to do. */
+static void version1_file(void **st)
+{
+	struct md_fix *f = *st;
+	size_t meta = QW_CKPT_HEADER + 3, len;
+	size_t slen = f->len - meta - QW_MODEL_META_LEN - QW_CKPT_TRAILER;
+	unsigned char *pl = malloc(QW_MODEL_META_LEN_V1 + slen);
+	unsigned char *b = malloc(f->len);
+	struct qw_ckpt_id id = {"rig", 0, MD_P};
+	struct qw_model_view v;
+	struct qw_model_meta m;
+	char err[MD_ERR];
+	qw_detector *d = NULL;
+
+	assert_non_null(pl);
+	assert_non_null(b);
+	memcpy(pl, f->file + meta, QW_MODEL_META_LEN_V1);
+	qw_le_put32(pl + 8, 1);
+	memcpy(pl + QW_MODEL_META_LEN_V1, f->file + meta + QW_MODEL_META_LEN,
+	       slen);
+	id.fingerprint = qw_config_fingerprint(&f->cfg.groups[0]);
+	assert_int_equal(qw_ckpt_encode(b, f->len, &id, 0, pl,
+					QW_MODEL_META_LEN_V1 + slen, &len), 0);
+	assert_int_equal(qw_model_decode(b, len, &v), 0);
+	assert_int_equal(v.meta.version, 1);
+	assert_true(isnan(v.meta.adapt_factor));
+	assert_true(v.meta.limit_factor == MD_FACTOR);
+	assert_int_equal(v.state_len, slen);
+	assert_memory_equal(v.state, f->file + meta + QW_MODEL_META_LEN, slen);
+	md_write(f, b, len);
+	md_config(f, "a, b, c", "fixed");
+	assert_int_equal(qw_model_detector(&f->cfg.groups[0], &d, &m, err,
+					   sizeof err), 0);
+	assert_true(qwt_reldiff(qw_detector_limit(d),
+				MD_FACTOR * qw_detector_limit(f->fitted),
+				0) < 1e-12);
+	assert_true(qw_model_factor(&m, QW_MODEL_FIXED) == MD_FACTOR);
+	qw_detector_free(d);
+	md_config(f, "a, b, c", "warm");
+	md_refused(f, QW_EVERSION, "model_use = fixed");
+	md_config(f, "a, b, c", NULL);
+	free(pl);
 	free(b);
 }
 
@@ -355,6 +444,7 @@ int main(void)
 		cmocka_unit_test(roundtrip),
 		cmocka_unit_test(loaded_groups),
 		cmocka_unit_test(refusals),
+		cmocka_unit_test(version1_file),
 		cmocka_unit_test(load_allocation_failures),
 		cmocka_unit_test(config_keys),
 	};

@@ -267,7 +267,8 @@ static int chk_group(const struct qw_config *c, const struct qw_group_conf *g,
 		       ? "warm" : "fixed");
 		chk_kv(2, "model_readings", "%llu",
 		       (unsigned long long)meta.used);
-		chk_kv(2, "model_limit_factor", "%.10g", meta.limit_factor);
+		chk_kv(2, "model_limit_factor", "%.10g",
+		       qw_model_factor(&meta, g->model_use));
 		chk_kv(2, "model_limit", "%.10g", meta.limit_emp);
 	}
 	return 0;

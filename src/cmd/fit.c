@@ -9,7 +9,9 @@
  * src/core: trimming, two-fold held-out tail fit).  Per group it prints
  * "key: value" lines (as check does): readings used and trimmed, the
  * Gaussian-theory limit beside the empirical one, and the alarms per day
- * each would have raised on the held-out scores.
+ * each would have raised on the held-out scores; then the same for the
+ * group's adaptive chart run over the recording (what a warm group
+ * applies).
  *
  * Exit: 0 every selected group fitted and written; 1 a runtime failure
  * (a group with too few readings, a file not written); 2 usage or
@@ -218,6 +220,63 @@ static const char *fit_dyn_name(enum qw_dynamics d)
 	return d == QW_DYN_AR1 ? "ar1" : d == QW_DYN_VAR1 ? "var1" : "none";
 }
 
+/* Tail depth: how many of the what lie beyond the limit at alpha, with
+ * the warning below FIT_DEPTH_MIN. */
+static void fit_print_depth(const char *key, const char *what, double depth)
+{
+	printf("  %-22s %.6g %s beyond the limit at alpha%s\n", key, depth,
+	       what, depth < FIT_DEPTH_MIN
+	       ? " (few: the limit is a long extrapolation, its delivered "
+		 "rate uncertain; fit a longer recording)" : "");
+}
+
+/* Alarms per day raised over days, with the counts behind it. */
+static void fit_print_apd(const char *key, uint64_t alarms, uint64_t ex,
+			  double days)
+{
+	printf("  %-22s %.6g (%llu alarms, %llu exceedances)\n", key,
+	       (double)alarms / days, (unsigned long long)alarms,
+	       (unsigned long long)ex);
+}
+
+/* A GPD tail fit over threshold u (limit units). */
+static void fit_print_tail(const char *key, const struct qw_gpd *g, double u)
+{
+	printf("  %-22s xi %.6g, sigma %.6g over %.6g (limit units), %zu "
+	       "excesses\n", key, g->xi, g->sigma, u, g->n);
+}
+
+/* The adaptive chart's lines: what model_use = warm applies. */
+static void fit_print_adaptive(const struct qw_params *par,
+			       const struct qw_fit_result *r)
+{
+	double days = r->adapt_days > 0 ? r->adapt_days : NAN;
+
+	printf("  %-22s %llu (%.6g days at %g readings/s) of the group's own "
+	       "chart, after warm-up\n", "adaptive_scored:",
+	       (unsigned long long)r->adapt_scored, r->adapt_days, par->rate);
+	printf("  %-22s %.10g%s\n", "adaptive_factor:", r->adapt_factor,
+	       r->adapt_tail_ok ? " (model_use = warm applies it)"
+				: " (too few scores for a tail fit: the "
+				  "Gaussian limit)");
+	printf("  %-22s %llu readings of bad stretches over the chart's own "
+	       "limit for most of their length, left out\n",
+	       "adaptive_faults:", (unsigned long long)r->adapt_faults);
+	printf("  %-22s %u runs of the chart%s\n", "adaptive_passes:",
+	       r->adapt_passes, !r->adapt_tail_ok || r->adapt_converged ? ""
+	       : " (stopped at the run limit before its tail agreed with "
+		 "the factor)");
+	if (r->adapt_tail_ok)
+		fit_print_tail("adaptive_tail:", &r->adapt_gpd,
+			       r->adapt_tail_u);
+	fit_print_depth("adaptive_tail_depth:", "scores",
+			r->alpha * (double)r->adapt_scored);
+	fit_print_apd("apd_adaptive_gauss:", r->adapt_alarms_gauss,
+		      r->adapt_ex_gauss, days);
+	fit_print_apd("apd_adaptive_emp:", r->adapt_alarms_emp,
+		      r->adapt_ex_emp, days);
+}
+
 /* What the fit found, as "key: value" lines (quadwatch-fit(1)). */
 static void fit_print(const struct qw_group_conf *gc,
 		      const struct qw_fit_result *r, const char *path)
@@ -245,29 +304,19 @@ static void fit_print(const struct qw_group_conf *gc,
 				 "the Gaussian limit)");
 	printf("  %-22s %.10g\n", "limit_factor:", r->limit_factor);
 	if (r->tail_ok)
-		printf("  %-22s xi %.6g, sigma %.6g over %.6g (limit units), "
-		       "%zu excesses\n", "tail:", r->gpd.xi, r->gpd.sigma,
-		       r->tail_u, r->gpd.n);
+		fit_print_tail("tail:", &r->gpd, r->tail_u);
 	printf("  %-22s %llu (%.6g days at %g readings/s)\n", "heldout:",
 	       (unsigned long long)r->heldout, r->heldout_days, par->rate);
-	printf("  %-22s %.6g held-out readings beyond the limit at alpha%s\n",
-	       "tail_depth:", r->alpha * (double)r->heldout,
-	       r->alpha * (double)r->heldout < FIT_DEPTH_MIN
-	       ? " (few: the limit is a long extrapolation, its delivered "
-		 "rate uncertain; fit a longer recording)" : "");
+	fit_print_depth("tail_depth:", "held-out readings",
+			r->alpha * (double)r->heldout);
 	printf("  %-22s %llu readings in runs of trimmed readings, left "
 	       "out of the held-out scores\n", "bad_stretches:",
 	       (unsigned long long)r->bad_stretch);
 	printf("  %-22s %.6g expected (configured %g)\n", "alarms_per_day:",
 	       par->alarms_per_day, par->alarms_per_day);
-	printf("  %-22s %.6g (%llu alarms, %llu exceedances)\n",
-	       "apd_gaussian:", (double)r->alarms_gauss / days,
-	       (unsigned long long)r->alarms_gauss,
-	       (unsigned long long)r->ex_gauss);
-	printf("  %-22s %.6g (%llu alarms, %llu exceedances)\n",
-	       "apd_empirical:", (double)r->alarms_emp / days,
-	       (unsigned long long)r->alarms_emp,
-	       (unsigned long long)r->ex_emp);
+	fit_print_apd("apd_gaussian:", r->alarms_gauss, r->ex_gauss, days);
+	fit_print_apd("apd_empirical:", r->alarms_emp, r->ex_emp, days);
+	fit_print_adaptive(par, r);
 	printf("  %-22s %s\n", "model:", path);
 }
 
@@ -316,6 +365,10 @@ static int fit_group(const struct qw_group_conf *gc, const struct fit_rec *r,
 	m.consistency = res.consistency;
 	m.gpd_xi = res.tail_ok ? res.gpd.xi : NAN;
 	m.gpd_sigma = res.tail_ok ? res.gpd.sigma : NAN;
+	m.adapt_factor = res.adapt_factor;
+	m.adapt_scored = res.adapt_scored;
+	m.adapt_gpd_xi = res.adapt_tail_ok ? res.adapt_gpd.xi : NAN;
+	m.adapt_gpd_sigma = res.adapt_tail_ok ? res.adapt_gpd.sigma : NAN;
 	rc = qw_model_save(path, &id, &m, d, err, sizeof err);
 	qw_detector_free(d);
 	if (rc != 0) {

@@ -21,8 +21,15 @@
  *    96  consistency  f64
  *   104  gpd_xi       f64      NaN when no tail was fitted
  *   112  gpd_sigma    f64
- *   120  state        the rest: qw_detector_state_get bytes (host order,
+ *   120  adapt_factor f64      the adaptive chart's empirical / Gaussian
+ *   128  adapt_scored u64      its scores behind that tail
+ *   136  adapt_gpd_xi f64      NaN when no tail was fitted
+ *   144  adapt_gpd_sigma f64
+ *   152  state        the rest: qw_detector_state_get bytes (host order,
  *                     the checkpoint header records which)
+ * Version 1 (quadwatch before the adaptive factor) stops at 120, where
+ * its state starts; it still loads as a fixed model, and a warm group
+ * refuses it (no factor measured for the adaptive chart).
  * A checkpoint's payload never starts with the model magic, so neither
  * kind of file passes for the other.  Workload: one file per group per
  * fit or start; allocation is fine. */
@@ -87,6 +94,10 @@ static void model_put_meta(unsigned char *b, const struct qw_model_meta *m)
 	model_putd(b + 96, m->consistency);
 	model_putd(b + 104, m->gpd_xi);
 	model_putd(b + 112, m->gpd_sigma);
+	model_putd(b + 120, m->adapt_factor);
+	qw_le_put64(b + 128, m->adapt_scored);
+	model_putd(b + 136, m->adapt_gpd_xi);
+	model_putd(b + 144, m->adapt_gpd_sigma);
 }
 
 int qw_model_encode(void *out, size_t cap, const struct qw_ckpt_id *id,
@@ -116,7 +127,9 @@ static int model_meta_ok(const struct qw_model_meta *m)
 	    m->used > m->readings || m->trimmed > m->readings ||
 	    !(m->limit_factor > 0) || !isfinite(m->limit_factor) ||
 	    !(m->alpha > 0 && m->alpha < 1) || !(m->consistency > 0) ||
-	    !isfinite(m->consistency))
+	    !isfinite(m->consistency) ||
+	    (m->version >= 2 && (!(m->adapt_factor > 0) ||
+				 !isfinite(m->adapt_factor))))
 		return QW_ERROR(QW_EFORMAT);
 	return 0;
 }
@@ -125,17 +138,22 @@ int qw_model_decode(const void *buf, size_t len, struct qw_model_view *v)
 {
 	const unsigned char *b;
 	struct qw_model_meta *m = &v->meta;
+	size_t meta_len;
 	int rc;
 
 	memset(v, 0, sizeof *v);
 	if ((rc = qw_ckpt_decode(buf, len, NULL, &v->ck)) != 0)
 		return rc;
 	b = v->ck.state;
-	if (v->ck.state_len < QW_MODEL_META_LEN ||
+	if (v->ck.state_len < QW_MODEL_META_LEN_V1 ||
 	    memcmp(b, QW_MODEL_MAGIC, QW_MODEL_MAGIC_LEN) != 0)
 		return QW_ERROR(QW_EFORMAT);
-	if (qw_le_get32(b + 8) != QW_MODEL_VERSION)
+	m->version = qw_le_get32(b + 8);
+	if (m->version != 1 && m->version != QW_MODEL_VERSION)
 		return QW_ERROR(QW_EVERSION);
+	meta_len = m->version == 1 ? QW_MODEL_META_LEN_V1 : QW_MODEL_META_LEN;
+	if (v->ck.state_len < meta_len)
+		return QW_ERROR(QW_EFORMAT);
 	m->dynamics = qw_le_get32(b + 12);
 	m->mode = qw_le_get32(b + 16);
 	m->smoothing = model_getd(b + 24);
@@ -150,10 +168,19 @@ int qw_model_decode(const void *buf, size_t len, struct qw_model_view *v)
 	m->consistency = model_getd(b + 96);
 	m->gpd_xi = model_getd(b + 104);
 	m->gpd_sigma = model_getd(b + 112);
+	if (m->version >= 2) {
+		m->adapt_factor = model_getd(b + 120);
+		m->adapt_scored = qw_le_get64(b + 128);
+		m->adapt_gpd_xi = model_getd(b + 136);
+		m->adapt_gpd_sigma = model_getd(b + 144);
+	} else {
+		m->adapt_factor = NAN;
+		m->adapt_gpd_xi = m->adapt_gpd_sigma = NAN;
+	}
 	if ((rc = model_meta_ok(m)) != 0)
 		return rc;
-	v->state = b + QW_MODEL_META_LEN;
-	v->state_len = v->ck.state_len - QW_MODEL_META_LEN;
+	v->state = b + meta_len;
+	v->state_len = v->ck.state_len - meta_len;
 	return 0;
 }
 
@@ -250,7 +277,15 @@ static int model_build(const char *path, const struct qw_model_view *v,
 	qw_detector *d;
 	int rc;
 
-	par.limit_factor *= v->meta.limit_factor;
+	if (gc->model_use == QW_MODEL_WARM && v->meta.version < 2) {
+		qw_errbuf(err, errlen, "%s: written by an older quadwatch fit "
+			  "(model format %u), which measured no limit for the "
+			  "adaptive chart that model_use = warm runs: fit "
+			  "again, or use model_use = fixed", path,
+			  (unsigned)v->meta.version);
+		return QW_ERROR(QW_EVERSION);
+	}
+	par.limit_factor *= qw_model_factor(&v->meta, gc->model_use);
 	d = qw_detector_alloc(&par);
 	if (d == NULL) {
 		qw_errbuf(err, errlen, "%s: group %s: out of memory", path,
@@ -272,6 +307,11 @@ static int model_build(const char *path, const struct qw_model_view *v,
 	qw_detector_counters_reset(d); /* the group counts its own readings */
 	*out = d;
 	return 0;
+}
+
+double qw_model_factor(const struct qw_model_meta *m, int use)
+{
+	return use == QW_MODEL_WARM ? m->adapt_factor : m->limit_factor;
 }
 
 int qw_model_detector(const struct qw_group_conf *gc, qw_detector **out,

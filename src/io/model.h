@@ -16,8 +16,9 @@
 
 #define QW_MODEL_MAGIC "QWFITMD1"  /* 8 bytes at the start of the payload */
 #define QW_MODEL_MAGIC_LEN 8
-#define QW_MODEL_VERSION 1u         /* version of the metadata layout */
-#define QW_MODEL_META_LEN 120       /* bytes of metadata before the state */
+#define QW_MODEL_VERSION 2u         /* version of the metadata layout */
+#define QW_MODEL_META_LEN 152       /* bytes of metadata before the state */
+#define QW_MODEL_META_LEN_V1 120    /* version 1: no adaptive factor */
 #define QW_MODEL_SUFFIX ".qwmodel"  /* DIR/GROUP.qwmodel */
 
 /* What the fit found, kept beside the model. */
@@ -36,6 +37,13 @@ struct qw_model_meta {
 	double alpha;          /* per-reading alpha at the fit */
 	double consistency;    /* trimming factor applied to the covariance */
 	double gpd_xi, gpd_sigma; /* the tail fit (NaN when none) */
+	/* version 2: the group's adaptive chart over the recording */
+	double adapt_factor;   /* its empirical / Gaussian limit: a warm
+				  group's limit_factor (NaN in version 1) */
+	uint64_t adapt_scored; /* its scores behind the tail */
+	double adapt_gpd_xi, adapt_gpd_sigma; /* its tail fit (NaN: none) */
+	uint32_t version;      /* of the file (decoded; written as
+				  QW_MODEL_VERSION) */
 };
 
 /* A decoded model file; pointers into the caller's buffer. */
@@ -58,8 +66,8 @@ int qw_model_encode(void *out, size_t cap, const struct qw_ckpt_id *id,
 /* Checks the image and fills *v: the checkpoint checks (QW_ETRUNC,
  * QW_EFORMAT, QW_EVERSION, QW_ECHECKSUM, QW_EMISMATCH for another byte
  * order), then QW_EFORMAT when the payload is not a model (a checkpoint
- * is not one) or a value is impossible, QW_EVERSION for another metadata
- * version. */
+ * is not one) or a value is impossible, QW_EVERSION for a metadata
+ * version other than 1 and 2 (version 1 decodes with adapt_factor NaN). */
 int qw_model_decode(const void *buf, size_t len, struct qw_model_view *v);
 
 /* Writes detector d (the fit's final model) with m as id's model file at
@@ -73,9 +81,12 @@ int qw_model_save(const char *path, const struct qw_ckpt_id *id,
  * with a message naming the file and what differs in err) unless it was
  * fitted for the same channels, dynamics and mode.  model_use = fixed:
  * frozen, the fitted limit factor applied; warm: the adaptive group
- * starts from the fitted model, with the same factor.  meta, when not
+ * starts from the fitted model, with the adaptive chart's factor
+ * (QW_EVERSION for a version 1 file, which has none).  meta, when not
  * NULL, gets the file's metadata. */
 int qw_model_detector(const struct qw_group_conf *gc, qw_detector **out,
 		      struct qw_model_meta *meta, char *err, size_t errlen);
+/* The limit factor a group with model_use = use applies from m. */
+double qw_model_factor(const struct qw_model_meta *m, int use);
 
 #endif

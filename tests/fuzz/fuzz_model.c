@@ -11,7 +11,9 @@
  * model.h documents; on success the state lies inside the input, its
  * length is the payload's less the metadata, and the metadata passes the
  * documented range checks (limit factor finite and > 0, alpha in (0, 1),
- * used and trimmed at most readings).  Seeds: tests/fuzz/corpus/model/.
+ * used and trimmed at most readings; version 2's adaptive factor finite
+ * and > 0, version 1's NaN).  Seeds: tests/fuzz/corpus/model/ (-0 files
+ * are version 1, -1 files version 2).
  * Linked against tools/fuzz's archive of the codecs and the core.
  */
 #include <math.h>
@@ -40,12 +42,21 @@ static void fz_decode(const uint8_t *buf, size_t len)
 		abort();
 	if (rc != 0)
 		return;
+	if (v.meta.version != 1 && v.meta.version != QW_MODEL_VERSION)
+		abort();
 	if (v.state < buf || v.state + v.state_len > buf + len ||
-	    v.state_len + QW_MODEL_META_LEN != v.ck.state_len)
+	    v.state_len + (v.meta.version == 1 ? QW_MODEL_META_LEN_V1
+					       : QW_MODEL_META_LEN) !=
+	    v.ck.state_len)
 		abort();
 	if (!(v.meta.limit_factor > 0) || !isfinite(v.meta.limit_factor) ||
 	    !(v.meta.alpha > 0 && v.meta.alpha < 1) ||
 	    v.meta.used > v.meta.readings || v.meta.trimmed > v.meta.readings)
+		abort();
+	/* version 2 carries the adaptive chart's factor, version 1 none */
+	if (v.meta.version == 1 ? !isnan(v.meta.adapt_factor)
+				: !(v.meta.adapt_factor > 0) ||
+				  !isfinite(v.meta.adapt_factor))
 		abort();
 }
 

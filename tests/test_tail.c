@@ -3,13 +3,15 @@
  * tests/t_fit_scipy.sh; here the properties that need no outside library:
  * the consistency factor against a direct simulation of trimmed Gaussian
  * readings, the GPD fit recovering known parameters, the tail quantile
- * against the exact GPD quantile, and the argument errors. */
+ * against the exact GPD quantile, the sort and selection against the C
+ * library's qsort on inputs of every shape, and the argument errors. */
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include <cmocka.h>
 #include <gsl/gsl_cdf.h>
@@ -161,6 +163,82 @@ static void tail_quantile_vs_exact(void **st)
 	gsl_rng_free(rng);
 }
 
+static int cmp_double(const void *a, const void *b)
+{
+	double x = *(const double *)a, y = *(const double *)b;
+
+	return (x > y) - (x < y);
+}
+
+/* Input shapes a partition sort can stumble on: random, sorted, reversed,
+ * all equal, few distinct values, organ pipe, sorted with a few swaps. */
+static void sort_input(gsl_rng *rng, int shape, double *a, size_t n)
+{
+	size_t i;
+
+	for (i = 0; i < n; i++) {
+		switch (shape) {
+		case 0: a[i] = gsl_rng_uniform(rng); break;
+		case 1: a[i] = (double)i; break;
+		case 2: a[i] = (double)(n - i); break;
+		case 3: a[i] = 7.0; break;
+		case 4: a[i] = (double)gsl_rng_uniform_int(rng, 3); break;
+		case 5: a[i] = (double)(i < n / 2 ? i : n - i); break;
+		default: a[i] = (double)i; break;
+		}
+	}
+	if (shape == 6)
+		for (i = 0; i + 1 < n && i < 5; i++) {
+			size_t j = gsl_rng_uniform_int(rng, n);
+			double t = a[i * 7 % n];
+
+			a[i * 7 % n] = a[j];
+			a[j] = t;
+		}
+}
+
+/* qw_tail_sort and qw_tail_select give what the C library's qsort does,
+ * element for element, on every shape and many sizes (around the
+ * insertion-sort cut-off too). */
+static void sort_and_select(void **st)
+{
+	static const size_t sizes[] = {1, 2, 3, 15, 16, 17, 18, 33, 100, 1000,
+				       4097, 200000};
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	size_t nmax = 200000, si, i, k;
+	double *a = malloc(nmax * sizeof *a), *ref = malloc(nmax * sizeof *a);
+	double *b = malloc(nmax * sizeof *a);
+	int shape;
+
+	(void)st;
+	assert_non_null(a);
+	assert_non_null(ref);
+	assert_non_null(b);
+	gsl_rng_set(rng, 77);
+	for (si = 0; si < sizeof sizes / sizeof *sizes; si++) {
+		size_t n = sizes[si];
+
+		for (shape = 0; shape < 7; shape++) {
+			sort_input(rng, shape, a, n);
+			memcpy(ref, a, n * sizeof *a);
+			memcpy(b, a, n * sizeof *a);
+			qsort(ref, n, sizeof *ref, cmp_double);
+			qw_tail_sort(a, n);
+			assert_memory_equal(a, ref, n * sizeof *a);
+			for (i = 0; i < 4; i++) {
+				k = i == 0 ? 0 : i == 1 ? n - 1 : i == 2
+				    ? n / 2 : gsl_rng_uniform_int(rng, n);
+				memcpy(a, b, n * sizeof *a);
+				assert_true(qw_tail_select(a, n, k) == ref[k]);
+			}
+		}
+	}
+	free(a);
+	free(b);
+	free(ref);
+	gsl_rng_free(rng);
+}
+
 static void tail_argument_errors(void **st)
 {
 	double s[100], y[100];
@@ -194,6 +272,7 @@ int main(void)
 		cmocka_unit_test(consistency_vs_simulation),
 		cmocka_unit_test(gpd_recovers_parameters),
 		cmocka_unit_test(tail_quantile_vs_exact),
+		cmocka_unit_test(sort_and_select),
 		cmocka_unit_test(tail_argument_errors),
 	};
 

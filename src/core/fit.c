@@ -197,9 +197,9 @@ static size_t fit_retrim(struct fit_work *w, size_t lo, size_t hi,
 				w->tmp[m++] = w->pv[i];
 		if (m == 0)
 			return 0;
-		qw_tail_sort(w->tmp, m);
 		/* drop the m - h smallest p-values */
-		cut = w->tmp[m - (size_t)ceil(keep * (double)m)];
+		cut = qw_tail_select(w->tmp, m,
+				     m - (size_t)ceil(keep * (double)m));
 	}
 	for (i = lo; i < hi; i++) {
 		t = !isnan(w->pv[i]) && w->pv[i] < cut;

@@ -2,6 +2,7 @@
 (Student t, 5 dof, so the Gaussian limit is too low) with two injected bad
 stretches, is fitted (the stretches trimmed and kept out of the tail); the model file then drives `replay` and `check`
 through model = PATH, model_use = fixed | warm.  Checked:
+  - fit shows a progress line on a terminal, none on a pipe;
   - fit prints readings/used/trimmed, both limits, and their ratio is the
     limit factor; the trimmed count covers the bad stretches, and the
     adaptive chart's tail leaves them out as faults;
@@ -16,6 +17,7 @@ through model = PATH, model_use = fixed | warm.  Checked:
   - usage errors exit 2."""
 import json
 import os
+import pty
 import re
 import subprocess
 
@@ -78,6 +80,31 @@ base = os.path.join(tmp, "base.ini")
 config(base)
 models = os.path.join(tmp, "models")
 os.mkdir(models)
+
+# progress: a line on a terminal, rewritten in place and wiped at the
+# end; nothing when stderr is not a terminal
+pm, ps = pty.openpty()
+p = subprocess.Popen([q.QW, "fit", "-c", base, "-o", models, fit_csv],
+                     stdout=subprocess.PIPE, stderr=ps)
+os.close(ps)
+tty = b""
+while True:
+    try:
+        chunk = os.read(pm, 4096)
+    except OSError:  # the child closed the terminal
+        break
+    if not chunk:
+        break
+    tty += chunk
+p.communicate(timeout=120)
+os.close(pm)
+q.check(p.returncode == 0, "fit on a terminal: exit %d" % p.returncode)
+q.check(b"fit: group skid (30000 readings): trimming, pass 1," in tty and
+        tty.endswith(b"\r\x1b[K"), "progress on a terminal: %r" % tty[-300:])
+q.note("progress line: %s" % tty.split(b"\r\x1b[K")[-2].decode())
+r = run("fit", "-c", base, "-o", models, fit_csv)
+q.check(r.returncode == 0 and r.stderr == "",
+        "fit with stderr not a terminal: %r" % r.stderr)
 
 r = run("fit", "-c", base, "-q", "-o", models, fit_csv)
 q.check(r.returncode == 0, "fit failed: %s" % r.stderr)

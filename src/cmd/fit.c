@@ -49,6 +49,15 @@ struct fit_opts {
 	const char *dir;       /* -o DIR; "." by default */
 	int no_trim;
 	int quiet;
+	int progress;          /* a progress line on stderr (a terminal) */
+};
+
+/* The progress line of one group's fit (qw_fit_opts.progress). */
+struct fit_progress {
+	const char *group;
+	size_t n;              /* readings */
+	double started, next;  /* monotonic s */
+	int shown;
 };
 
 static void fit_usage(FILE *f)
@@ -320,6 +329,21 @@ static void fit_print(const struct qw_group_conf *gc,
 	printf("  %-22s %s\n", "model:", path);
 }
 
+/* Before each pass of the fit over the readings: at most every
+ * RP_PROGRESS_EVERY, the first pass at once. */
+static void fit_progress(void *ctx, const char *stage, unsigned pass)
+{
+	struct fit_progress *fp = ctx;
+	double now = qw_log_monotonic();
+
+	if (fp->shown && now < fp->next)
+		return;
+	fp->next = now + RP_PROGRESS_EVERY;
+	fprintf(stderr, "\r\033[Kfit: group %s (%zu readings): %s, pass %u, "
+		"%.0f s", fp->group, fp->n, stage, pass, now - fp->started);
+	fp->shown = 1;
+}
+
 /* Fits and writes one group.  0 or an exit code (message printed). */
 static int fit_group(const struct qw_group_conf *gc, const struct fit_rec *r,
 		     const struct fit_opts *fo)
@@ -330,12 +354,18 @@ static int fit_group(const struct qw_group_conf *gc, const struct fit_rec *r,
 	struct qw_model_meta m;
 	struct qw_fit_result res;
 	struct qw_fit_opts o;
+	struct fit_progress fp = {gc->name, r->n, 0, 0, 0};
 	qw_detector *d = NULL;
 	int rc, w;
 
 	qw_fit_opts_default(&o);
 	if (fo->no_trim)
 		o.trim_alpha = 0;
+	if (fo->progress) {
+		fp.started = qw_log_monotonic();
+		o.progress = fit_progress;
+		o.progress_ctx = &fp;
+	}
 	w = snprintf(path, sizeof path, "%s/%s%s", fo->dir, gc->name,
 		     QW_MODEL_SUFFIX);
 	if (w < 0 || (size_t)w >= sizeof path) {
@@ -343,6 +373,8 @@ static int fit_group(const struct qw_group_conf *gc, const struct fit_rec *r,
 		return QW_EXIT_USAGE;
 	}
 	rc = qw_fit_run(&gc->params, r->t, r->x, r->n, &o, &res, &d);
+	if (fp.shown)
+		fputs("\r\033[K", stderr);
 	if (rc != 0) {
 		fprintf(stderr, FIT_PROG ": group %s: %s\n", gc->name,
 			rc == QW_ENODATA || rc == QW_EINVAL
@@ -438,6 +470,7 @@ int qw_cmd_fit(int argc, char **argv)
 	if (fo.quiet)
 		qw_log_set_level(QW_LOG_ERROR);
 	rp.progress = !fo.quiet && isatty(STDERR_FILENO);
+	fo.progress = rp.progress;
 	rp.started = qw_log_monotonic();
 	rp.next_progress = rp.started + RP_PROGRESS_EVERY;
 	rc = fit_setup(&rp, &recs);

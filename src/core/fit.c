@@ -124,7 +124,17 @@ struct fit_work {
 	double *z;               /* n held-out scores / their limit */
 	unsigned char *state;    /* a detector's state, saved around scoring */
 	size_t state_len;
+	const char *stage;       /* what the passes are for (progress) */
+	unsigned passes;         /* over the readings so far */
 };
+
+/* Before each pass over the readings: the caller's progress hook. */
+static void fit_tick(struct fit_work *w)
+{
+	w->passes++;
+	if (w->o->progress != NULL)
+		w->o->progress(w->o->progress_ctx, w->stage, w->passes);
+}
 
 void qw_fit_opts_default(struct qw_fit_opts *o)
 {
@@ -132,6 +142,8 @@ void qw_fit_opts_default(struct qw_fit_opts *o)
 	o->trim_alpha = FIT_DEF_TRIM_ALPHA;
 	o->max_iter = FIT_DEF_MAX_ITER;
 	o->tail_fraction = FIT_DEF_TAIL_FRACTION;
+	o->progress = NULL;
+	o->progress_ctx = NULL;
 }
 
 /* A detector that learned the untrimmed readings of [lo, hi), its
@@ -145,6 +157,7 @@ static qw_detector *fit_learn(struct fit_work *w, const struct qw_params *par,
 
 	if (d == NULL)
 		return NULL;
+	fit_tick(w);
 	for (i = lo; i < hi; i++) /* rejections are counted by the core */
 		(void)qw_detector_add_flags(d, w->t[i], w->x + i * w->p,
 					    w->trim[i] ? QW_ADD_NOLEARN : 0,
@@ -173,6 +186,7 @@ static int fit_pvalues(struct fit_work *w, qw_detector *d, size_t lo,
 		w->state_len = len;
 	}
 	qw_detector_state_get(d, w->state);
+	fit_tick(w);
 	for (i = lo; i < hi; i++) {
 		(void)qw_detector_add_flags(d, w->t[i], w->x + i * w->p,
 					    QW_ADD_NOLEARN, &res);
@@ -290,6 +304,7 @@ static void fit_heldout(struct fit_work *w, qw_detector *d, size_t lo,
 
 	if (!(lim > 0) || !isfinite(lim))
 		return; /* too few readings for a limit: nothing to measure */
+	fit_tick(w);
 	for (i = lo; i < hi; i++) {
 		(void)qw_detector_add_flags(d, w->t[i], w->x + i * w->p,
 					    QW_ADD_NOLEARN, &res);
@@ -350,6 +365,7 @@ static int fit_limit(struct fit_work *w, const struct qw_params *par,
 	struct qw_tail tail;
 	int rc;
 
+	w->stage = "held-out halves";
 	if ((rc = fit_range(w, 0, half, &d, &part)) != 0)
 		return rc;
 	fit_heldout(w, d, half, n, z, &nz);
@@ -405,6 +421,7 @@ static int fit_adaptive_pass(struct fit_work *w, const struct qw_params *par,
 	ap.limit_factor = f;
 	if ((d = qw_detector_alloc(&ap)) == NULL)
 		return QW_ERROR(QW_ENOMEM);
+	fit_tick(w);
 	*nz = 0;
 	*ex = *alarms = 0;
 	for (i = 0; i < n; i++) {
@@ -473,6 +490,7 @@ static int fit_adaptive(struct fit_work *w, const struct qw_params *par,
 	size_t nz = 0;
 	int rc;
 
+	w->stage = "adaptive chart";
 	/* w->trim is free by now (fit_limit's folds are done): the faults */
 	if (r->bad_stretch > 0) {
 		if ((rc = fit_adaptive_pass(w, par, n, 1.0, NULL, z, &nz, &ex,
@@ -539,6 +557,7 @@ static int fit_work_init(struct fit_work *w, const struct qw_params *par,
 	w->tp = w->fp;
 	w->tp.mode = QW_MODE_PLAIN;
 	w->o = o;
+	w->stage = "trimming";
 	w->t = t;
 	w->x = x;
 	w->p = par->p;

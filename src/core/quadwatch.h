@@ -398,6 +398,12 @@ struct qw_fit_opts {
 			       point.  Default 20 */
 	double tail_fraction; /* share of held-out scores in the GPD fit.
 			       Default 0.05 */
+	/* When not NULL, called before each pass over the readings, with
+	 * what the pass is for ("trimming", "held-out halves", "adaptive
+	 * chart") and the passes so far (1, 2, ...): the caller shows
+	 * progress (the core does no I/O).  Default NULL. */
+	void (*progress)(void *ctx, const char *stage, unsigned pass);
+	void *progress_ctx;
 };
 
 void qw_fit_opts_default(struct qw_fit_opts *o);

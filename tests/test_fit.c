@@ -14,6 +14,8 @@
  *     process a warm group with it delivers the configured rate on fresh
  *     data within +-20%, where the Gaussian limit and the fixed model's
  *     factor do not;
+ *   - a shallow tail (few readings expected beyond the limit) may not
+ *     lower a limit below the Gaussian one; a deep one does;
  *   - argument errors and too little data.
  * The Phase II limit against scipy's F form is tests/t_fit_scipy.sh. */
 #include <setjmp.h>
@@ -253,6 +255,69 @@ static void adaptive_delivered_rate(void **st)
 	for (k = 0; k < 3; k++)
 		qw_detector_free(d[k]);
 	qw_detector_free(fm);
+	free(t);
+	free(xs);
+	gsl_rng_free(rng);
+}
+
+/* A light-tailed plant (each channel uniform, so every score is bounded
+ * by 3p) fitted at two rates: at alpha ~1e-2 its tail is deep and both
+ * factors come out below 1 and are applied; at 1 alarm a day (alpha
+ * ~1.2e-5, under one reading beyond the limit in the recording) the tail
+ * is shallow and both factors stay at 1, with what the tail gave kept
+ * beside them. */
+#define LIGHT_N 20000
+
+static void shallow_tail_keeps_gaussian(void **st)
+{
+	static const double apd[2] = {864.0, 1.0};
+	gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+	double floor[P], *t = malloc(LIGHT_N * sizeof *t);
+	double *xs = malloc(LIGHT_N * P * sizeof *xs);
+	struct qw_params par;
+	struct qw_fit_opts o;
+	struct qw_fit_result r;
+	qw_detector *m;
+	size_t i, k;
+
+	(void)st;
+	assert_non_null(t);
+	assert_non_null(xs);
+	gsl_rng_set(rng, 5150);
+	for (i = 0; i < LIGHT_N; i++) {
+		t[i] = (double)i;
+		for (k = 0; k < P; k++)
+			xs[i * P + k] = gsl_ran_flat(rng, -1.7, 1.7);
+	}
+	qw_fit_opts_default(&o);
+	for (k = 0; k < 2; k++) {
+		params(&par, P, floor);
+		par.alarms_per_day = apd[k];
+		m = NULL;
+		assert_int_equal(qw_fit_run(&par, t, xs, LIGHT_N, &o, &r, &m),
+				 0);
+		printf("# uniform p=%d, alpha %.3g: depth %.3g held out, %.3g "
+		       "adaptive; fixed factor %.4f (tail %.4f), adaptive "
+		       "%.4f (tail %.4f)\n", P, r.alpha,
+		       r.alpha * (double)r.heldout,
+		       r.alpha * (double)r.adapt_scored, r.limit_factor,
+		       r.limit_tail, r.adapt_factor, r.adapt_tail);
+		assert_true(r.tail_ok && r.adapt_tail_ok);
+		assert_true(r.limit_tail < 1.0 && r.adapt_tail < 1.0);
+		if (k == 0) { /* deep: the data lower the limit */
+			assert_true(r.alpha * (double)r.heldout >
+				    QW_FIT_DEPTH_MIN);
+			assert_true(r.limit_factor == r.limit_tail);
+			assert_true(r.adapt_factor < 1.0);
+		} else {      /* shallow: the Gaussian limit stays */
+			assert_true(r.alpha * (double)r.adapt_scored <
+				    QW_FIT_DEPTH_MIN);
+			assert_true(r.limit_factor == 1.0);
+			assert_true(r.adapt_factor == 1.0);
+			assert_true(r.adapt_converged);
+		}
+		qw_detector_free(m);
+	}
 	free(t);
 	free(xs);
 	gsl_rng_free(rng);
@@ -601,6 +666,7 @@ int main(void)
 	const struct CMUnitTest tests[] = {
 		cmocka_unit_test(heavy_tail_delivered_rate),
 		cmocka_unit_test(adaptive_delivered_rate),
+		cmocka_unit_test(shallow_tail_keeps_gaussian),
 		cmocka_unit_test(trimming_bad_stretches),
 		cmocka_unit_test(untrimmed_is_sample_moments),
 		cmocka_unit_test(dynamics_each_setting),

@@ -32,10 +32,6 @@
 #define FIT_PROG "quadwatch fit"
 #define FIT_CAP0 4096          /* readings held before the first growth */
 #define FIT_PATH_MAX 1200      /* bytes of DIR/GROUP.qwmodel */
-/* Held-out readings expected beyond the limit below which fit warns: the
- * rate the empirical limit delivers has a relative error of about
- * 1/sqrt(this) (tests/test_fit.c: 100 gave 4%, 20 gave 22%). */
-#define FIT_DEPTH_MIN 30.0
 
 /* The readings of one group, in order. */
 struct fit_rec {
@@ -230,13 +226,21 @@ static const char *fit_dyn_name(enum qw_dynamics d)
 }
 
 /* Tail depth: how many of the what lie beyond the limit at alpha, with
- * the warning below FIT_DEPTH_MIN. */
+ * the warning below QW_FIT_DEPTH_MIN. */
 static void fit_print_depth(const char *key, const char *what, double depth)
 {
 	printf("  %-22s %.6g %s beyond the limit at alpha%s\n", key, depth,
-	       what, depth < FIT_DEPTH_MIN
+	       what, depth < QW_FIT_DEPTH_MIN
 	       ? " (few: the limit is a long extrapolation, its delivered "
 		 "rate uncertain; fit a longer recording)" : "");
+}
+
+/* After a factor: the note when a shallow tail below 1 left it at 1. */
+static void fit_print_floor(int tail_ok, double factor, double tail)
+{
+	if (tail_ok && factor == 1.0 && tail < 1.0)
+		printf(" (the tail gave %.6g; a shallow tail does not lower "
+		       "the Gaussian limit)", tail);
 }
 
 /* Alarms per day raised over days, with the counts behind it. */
@@ -264,10 +268,11 @@ static void fit_print_adaptive(const struct qw_params *par,
 	printf("  %-22s %llu (%.6g days at %g readings/s) of the group's own "
 	       "chart, after warm-up\n", "adaptive_scored:",
 	       (unsigned long long)r->adapt_scored, r->adapt_days, par->rate);
-	printf("  %-22s %.10g%s\n", "adaptive_factor:", r->adapt_factor,
-	       r->adapt_tail_ok ? " (model_use = warm applies it)"
-				: " (too few scores for a tail fit: the "
-				  "Gaussian limit)");
+	printf("  %-22s %.10g", "adaptive_factor:", r->adapt_factor);
+	fit_print_floor(r->adapt_tail_ok, r->adapt_factor, r->adapt_tail);
+	printf("%s\n", r->adapt_tail_ok ? " (model_use = warm applies it)"
+				       : " (too few scores for a tail fit: "
+					 "the Gaussian limit)");
 	printf("  %-22s %llu readings of bad stretches over the chart's own "
 	       "limit for most of their length, left out\n",
 	       "adaptive_faults:", (unsigned long long)r->adapt_faults);
@@ -311,7 +316,9 @@ static void fit_print(const struct qw_group_conf *gc,
 	printf("  %-22s %.10g%s\n", "limit_empirical:", r->limit_emp,
 	       r->tail_ok ? "" : " (too few held-out scores for a tail fit: "
 				 "the Gaussian limit)");
-	printf("  %-22s %.10g\n", "limit_factor:", r->limit_factor);
+	printf("  %-22s %.10g", "limit_factor:", r->limit_factor);
+	fit_print_floor(r->tail_ok, r->limit_factor, r->limit_tail);
+	printf("\n");
 	if (r->tail_ok)
 		fit_print_tail("tail:", &r->gpd, r->tail_u);
 	printf("  %-22s %llu (%.6g days at %g readings/s)\n", "heldout:",

@@ -388,6 +388,15 @@ double qw_tail_phase2_limit(double alpha, unsigned p, double n);
 
 /* ---- fit.c: a model from a healthy recording -------------------------- */
 
+/* Scores expected beyond the limit (alpha times the scores behind a tail
+ * fit) below which the tail is shallow: the rate the fitted limit
+ * delivers has a relative error of about 1/sqrt of this depth
+ * (tests/test_fit.c: 100 gave 4%, 20 gave 22%), and a limit within a few
+ * per cent moves a light-tailed rate by a factor of two or more.  A
+ * shallow tail may raise a limit above the Gaussian one but not lower it
+ * (fit.c). */
+#define QW_FIT_DEPTH_MIN 30.0
+
 struct qw_fit_opts {
 	double cstep_keep;  /* share kept by each concentration step (C-step,
 			       FAST-MCD); 1 = none.  Default 0.75 */
@@ -419,6 +428,9 @@ struct qw_fit_result {
 	double alpha;         /* per-reading alpha of the group */
 	double limit_gauss;   /* the fixed model's limit (Gaussian theory) */
 	double limit_factor;  /* empirical / Gaussian (1 when no tail) */
+	double limit_tail;    /* what the tail fit gave (NaN: none); the
+				 factor is 1 instead when it is below 1 and
+				 the tail shallow (QW_FIT_DEPTH_MIN) */
 	double limit_emp;     /* limit_gauss * limit_factor */
 	int tail_ok;          /* held-out scores sufficed for a tail fit */
 	struct qw_gpd gpd;    /* of held-out scores / their Gaussian limit */
@@ -435,6 +447,10 @@ struct qw_fit_result {
 	 * (fit.c).  What a group loading the model warm multiplies its
 	 * limits by. */
 	double adapt_factor;  /* empirical / Gaussian (1 when no tail) */
+	double adapt_tail;    /* what the last run's tail gave: the factor
+				 within FIT_ADAPT_TOL once converged, or
+				 below 1 where a shallow tail left the
+				 factor at 1; NaN when none */
 	int adapt_tail_ok;    /* enough scores for a tail fit */
 	struct qw_gpd adapt_gpd; /* of its scores / their limit */
 	double adapt_tail_u;  /* the threshold of that fit (limit units) */
@@ -457,8 +473,8 @@ struct qw_fit_result {
  * far out; two-fold held-out scores give the empirical limit of the fixed
  * model, and the group's adaptive chart run over the recording gives its
  * own (adapt_*).  *model gets the final detector (frozen; the caller
- * frees it), its limit factor still 1.  QW_EINVAL for bad arguments, QW_ENODATA when too few readings
- * are learnable, QW_ENOMEM. */
+ * frees it), its limit factor still 1.  QW_EINVAL for bad arguments,
+ * QW_ENODATA when too few readings are learnable, QW_ENOMEM. */
 int qw_fit_run(const struct qw_params *par, const double *t, const double *x,
 	       size_t n, const struct qw_fit_opts *o, struct qw_fit_result *res,
 	       qw_detector **model);

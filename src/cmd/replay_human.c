@@ -178,6 +178,8 @@ int qw_replay_human(const struct replay *rp, FILE *f)
 	fprintf(f, "caution: readings that are correlated in time (slow "
 		"processes, oversampling)\n  raise more alarms than the "
 		"configured rate; the tuning figures above include\n  that "
-		"effect for this recording.\n");
+		"effect for this recording.  quadwatch fit on a healthy "
+		"recording\n  measures each group's own limit from it "
+		"(quadwatch-fit(1)).\n");
 	return 0;
 }

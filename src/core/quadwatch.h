@@ -237,7 +237,9 @@ double qw_params_max_gap(const struct qw_params *par);
 
 struct qw_result {
 	double q;          /* squared Mahalanobis distance before learning */
-	double limit;      /* control limit for this reading (Inf in warm-up) */
+	double limit;      /* control limit for this reading: Inf while the
+			      model is too young to score; during the rest
+			      of warm-up finite, but over stays 0 */
 	double nu;         /* effective size behind the limit (for p-value) */
 	double scale;      /* scale behind the limit (for p-value) */
 	unsigned dof;      /* channels observed */

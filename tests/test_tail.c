@@ -4,7 +4,8 @@
  * the consistency factor against a direct simulation of trimmed Gaussian
  * readings, the GPD fit recovering known parameters, the tail quantile
  * against the exact GPD quantile, the sort and selection against the C
- * library's qsort on inputs of every shape, and the argument errors. */
+ * library's qsort on inputs of every shape, the chi-square tail sums
+ * against GSL, and the argument errors. */
 #include <setjmp.h>
 #include <stdarg.h>
 #include <stddef.h>
@@ -17,6 +18,7 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
+#include "internal.h"
 #include "quadwatch.h"
 #include "qwtest.h"
 
@@ -239,6 +241,42 @@ static void sort_and_select(void **st)
 	gsl_rng_free(rng);
 }
 
+/* qw_chisq_q (the finite sums behind a fit's trimming p-values) against
+ * GSL's gsl_cdf_chisq_Q, which the fit used before: every integer dof up
+ * to QW_CHISQ_KMAX, from the bulk to tails of 1e-300; beyond its range it
+ * is GSL's own figure. */
+#define TOL_CHISQ 5e-13
+
+static void chisq_q_vs_gsl(void **st)
+{
+	double x, a, b, worst = 0.0, wx = 0.0;
+	unsigned k, wk = 0;
+
+	(void)st;
+	for (k = 1; k <= QW_CHISQ_KMAX; k++) {
+		assert_true(qw_chisq_q(0.0, k) == 1.0);
+		for (x = 0.005; x <= 2.0 * QW_CHISQ_HMAX;
+		     x += x < 60 ? 0.01 : 0.7) {
+			a = qw_chisq_q(x, k);
+			b = gsl_cdf_chisq_Q(x, (double)k);
+			if (b < 1e-300)
+				continue;
+			if (fabs(a - b) / b > worst) {
+				worst = fabs(a - b) / b;
+				wx = x;
+				wk = k;
+			}
+		}
+	}
+	printf("# chi-square tail, dof 1..%u: worst relative gap to GSL %.3g "
+	       "(x %.4g, dof %u)\n", QW_CHISQ_KMAX, worst, wx, wk);
+	assert_true(worst < TOL_CHISQ);
+	/* outside the sums' range: GSL's figure, bit for bit */
+	assert_true(qw_chisq_q(1500.0, 3) == gsl_cdf_chisq_Q(1500.0, 3.0));
+	assert_true(qw_chisq_q(80.0, QW_CHISQ_KMAX + 1) ==
+		    gsl_cdf_chisq_Q(80.0, (double)(QW_CHISQ_KMAX + 1)));
+}
+
 static void tail_argument_errors(void **st)
 {
 	double s[100], y[100];
@@ -273,6 +311,7 @@ int main(void)
 		cmocka_unit_test(gpd_recovers_parameters),
 		cmocka_unit_test(tail_quantile_vs_exact),
 		cmocka_unit_test(sort_and_select),
+		cmocka_unit_test(chisq_q_vs_gsl),
 		cmocka_unit_test(tail_argument_errors),
 	};
 

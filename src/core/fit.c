@@ -81,8 +81,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include <gsl/gsl_cdf.h>
-
+#include "internal.h"
 #include "quadwatch.h"
 
 #define FIT_DEF_CSTEP_KEEP 0.75  /* h/n: the usual MCD choice, between
@@ -191,7 +190,7 @@ static int fit_pvalues(struct fit_work *w, qw_detector *d, size_t lo,
 		(void)qw_detector_add_flags(d, w->t[i], w->x + i * w->p,
 					    QW_ADD_NOLEARN, &res);
 		w->pv[i] = res.scored && res.dof > 0 && isfinite(res.q)
-			   ? gsl_cdf_chisq_Q(res.q, (double)res.dof) : NAN;
+			   ? qw_chisq_q(res.q, res.dof) : NAN;
 	}
 	return qw_detector_state_set(d, w->state, len);
 }

@@ -47,6 +47,7 @@
 
 #include <gsl/gsl_cdf.h>
 
+#include "internal.h"
 #include "quadwatch.h"
 
 #define TAIL_GRID_NEG 48     /* grid points with theta < 0 */
@@ -394,6 +395,34 @@ double qw_tail_sf(const struct qw_tail *t, double q)
 	if (!(1.0 + xi * z > 0))
 		return 0.0;
 	return share * exp(-log1p(xi * z) / xi);
+}
+
+double qw_chisq_q(double x, unsigned k)
+{
+	double h = 0.5 * x, t, s;
+	unsigned i;
+
+	if (k == 0 || k > QW_CHISQ_KMAX || !(x >= 0) || !(h <= QW_CHISQ_HMAX))
+		return gsl_cdf_chisq_Q(x, (double)k);
+	if (k % 2 == 0) {
+		/* e^-h sum_{i < k/2} h^i / i! */
+		t = exp(-h);
+		s = t;
+		for (i = 1; i < k / 2; i++) {
+			t *= h / (double)i;
+			s += t;
+		}
+		return s;
+	}
+	/* erfc(sqrt h) + e^-h sum_{i = 1}^{(k-1)/2} h^(i-1/2) / Gamma(i+1/2),
+	 * Gamma(3/2) = sqrt(pi)/2 */
+	s = erfc(sqrt(h));
+	t = exp(-h) * sqrt(h) * M_2_SQRTPI;
+	for (i = 1; i <= (k - 1) / 2; i++) {
+		s += t;
+		t *= h / ((double)i + 0.5);
+	}
+	return s;
 }
 
 double qw_tail_consistency(double keep, unsigned p)

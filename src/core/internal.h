@@ -133,8 +133,9 @@ enum qw_sweep_kind {
 qw_sweep_fn qw_sweep_variant(enum qw_sweep_kind kind);
 
 /* P(chi2_k > x) for integer dof k >= 1 (tail.c): the finite sums of
- * Abramowitz & Stegun 26.4.4 (even k) and 26.4.5 (odd k), whose terms are
- * all positive, for k <= QW_CHISQ_KMAX and x/2 <= QW_CHISQ_HMAX (where
+ * Abramowitz & Stegun 26.4.4 (even k) and 26.4.5 (odd k; the equation
+ * numbers quoted from memory, the sums checked against GSL), whose terms
+ * are all positive, for k <= QW_CHISQ_KMAX and x/2 <= QW_CHISQ_HMAX (where
  * e^(-x/2) is a normal double); GSL's gsl_cdf_chisq_Q otherwise.  Within
  * 2e-13 relative of GSL over that range (test_tail), at a fraction of its
  * cost for small k: what a fit's trimming passes spend their time on. */

@@ -3,8 +3,8 @@
  * tests/t_fit_scipy.sh; here the properties that need no outside library:
  * the consistency factor against a direct simulation of trimmed Gaussian
  * readings, the GPD fit recovering known parameters, the tail quantile
- * against the exact GPD quantile, the sort and selection against the C
- * library's qsort on inputs of every shape, the chi-square tail sums
+ * against the exact GPD quantile, the sort (and sort.c's selection)
+ * against the C library's qsort on inputs of every shape, the chi-square tail sums
  * against GSL, and the argument errors. */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -21,6 +21,7 @@
 #include "internal.h"
 #include "quadwatch.h"
 #include "qwtest.h"
+#include "sort.h"
 
 #define SIM_N 400000     /* Gaussian draws per consistency check */
 /* The kept share of the variance is estimated from ~SIM_N readings; its
@@ -199,9 +200,10 @@ static void sort_input(gsl_rng *rng, int shape, double *a, size_t n)
 		}
 }
 
-/* qw_tail_sort and qw_tail_select give what the C library's qsort does,
- * element for element, on every shape and many sizes (around the
- * insertion-sort cut-off too). */
+/* qw_tail_sort gives what the C library's qsort does, element for
+ * element, on every shape and many sizes (around the insertion-sort
+ * cut-off too); so does the selection a fit's C-steps take their cut from
+ * (qw_select_double, sort.c), at four ranks of each. */
 static void sort_and_select(void **st)
 {
 	static const size_t sizes[] = {1, 2, 3, 15, 16, 17, 18, 33, 100, 1000,
@@ -231,7 +233,7 @@ static void sort_and_select(void **st)
 				k = i == 0 ? 0 : i == 1 ? n - 1 : i == 2
 				    ? n / 2 : gsl_rng_uniform_int(rng, n);
 				memcpy(a, b, n * sizeof *a);
-				assert_true(qw_tail_select(a, n, k) == ref[k]);
+				assert_true(qw_select_double(a, n, k) == ref[k]);
 			}
 		}
 	}

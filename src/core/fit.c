@@ -84,6 +84,7 @@
 
 #include "internal.h"
 #include "quadwatch.h"
+#include "sort.h"
 
 #define FIT_DEF_CSTEP_KEEP 0.75  /* h/n: the usual MCD choice, between
 				    the 50% breakdown point and efficiency */
@@ -212,8 +213,8 @@ static size_t fit_retrim(struct fit_work *w, size_t lo, size_t hi,
 		if (m == 0)
 			return 0;
 		/* drop the m - h smallest p-values */
-		cut = qw_tail_select(w->tmp, m,
-				     m - (size_t)ceil(keep * (double)m));
+		cut = qw_select_double(w->tmp, m,
+				       m - (size_t)ceil(keep * (double)m));
 	}
 	for (i = lo; i < hi; i++) {
 		t = !isnan(w->pv[i]) && w->pv[i] < cut;

@@ -376,9 +376,6 @@ double qw_tail_sf(const struct qw_tail *t, double q);
 /* Ascending sort of n doubles (no NaN), in place, no allocation
  * (introsort: O(n log n) on any input). */
 void qw_tail_sort(double *a, size_t n);
-/* The k-th smallest (0-based, k < n) of n doubles (no NaN), permuting a
- * in place: the value a sort would put at a[k], in O(n) on average. */
-double qw_tail_select(double *a, size_t n, size_t k);
 /* Consistency factor of a Gaussian covariance estimated from the readings
  * kept when q <= chi2_p^-1(keep): keep / P(chi2_{p+2} <= that). */
 double qw_tail_consistency(double keep, unsigned p);

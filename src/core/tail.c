@@ -49,6 +49,7 @@
 
 #include "internal.h"
 #include "quadwatch.h"
+#include "sort.h"
 
 #define TAIL_GRID_NEG 48     /* grid points with theta < 0 */
 #define TAIL_GRID_POS 81     /* grid points with theta > 0 */
@@ -57,7 +58,6 @@
 #define TAIL_POS_STEP 0.1    /* log10 steps, up to 10^4 */
 #define TAIL_GOLDEN_STEPS 100 /* golden-section steps: 0.618^100 ~ 1e-21 */
 #define TAIL_XI_MIN -1.0     /* below: likelihood unbounded (see top) */
-#define TAIL_SMALL 16        /* ranges this short are insertion-sorted */
 
 /* xi(theta) = mean log(1 + theta y); NaN when some 1 + theta y <= 0. */
 static double tail_xi(const double *y, size_t n, double theta)
@@ -190,135 +190,9 @@ int qw_tail_gpd_fit(const double *y, size_t n, struct qw_gpd *out)
 	return 0;
 }
 
-/* Ascending heap sort of n doubles: no recursion, no allocation, O(n log
- * n) on any input, but a cache miss per step on large arrays; the
- * fallback of the introsort below, which is what sorts the scores of a
- * recording (up to ~10^7). */
-static void tail_sort(double *a, size_t n)
-{
-	size_t start = n / 2, end = n, root, child;
-	double t;
-
-	while (end > 1) {
-		if (start > 0) {
-			start--;
-		} else {
-			end--;
-			t = a[end], a[end] = a[0], a[0] = t;
-		}
-		root = start;
-		while ((child = 2 * root + 1) < end) {
-			if (child + 1 < end && a[child] < a[child + 1])
-				child++;
-			if (!(a[root] < a[child]))
-				break;
-			t = a[root], a[root] = a[child], a[child] = t;
-			root = child;
-		}
-	}
-}
-
-static void tail_swap(double *a, size_t i, size_t j)
-{
-	double t = a[i];
-
-	a[i] = a[j];
-	a[j] = t;
-}
-
-/* Hoare partition of a[lo..hi] (hi > lo) around the median of a[lo],
- * a[mid], a[hi]: returns j, lo <= j < hi, with a[lo..j] <= a[j+1..hi].
- * The median of three leaves a value <= the pivot at lo and >= it at hi,
- * so neither scan runs off the range, and the scan from lo stops at mid
- * at the latest, so j < hi and both sides shrink. */
-static size_t tail_partition(double *a, size_t lo, size_t hi)
-{
-	size_t mid = lo + (hi - lo) / 2, i = lo, j = hi;
-	double p;
-
-	if (a[mid] < a[lo])
-		tail_swap(a, lo, mid);
-	if (a[hi] < a[lo])
-		tail_swap(a, lo, hi);
-	if (a[hi] < a[mid])
-		tail_swap(a, mid, hi);
-	p = a[mid];
-	for (;;) {
-		while (a[i] < p)
-			i++;
-		while (p < a[j])
-			j--;
-		if (i >= j)
-			return j;
-		tail_swap(a, i++, j--);
-	}
-}
-
-/* 2 floor(log2 n): partitions allowed before a range falls back to the
- * heap sort (introsort; Musser 1997), so no input is quadratic. */
-static unsigned tail_depth(size_t n)
-{
-	unsigned d = 0;
-
-	while (n > 1) {
-		n >>= 1;
-		d += 2;
-	}
-	return d;
-}
-
-/* Introsort of a[lo..hi]: partitions down to TAIL_SMALL elements, then
- * insertion sort; the smaller side by recursion (depth <= log2 n). */
-static void tail_introsort(double *a, size_t lo, size_t hi, unsigned depth)
-{
-	size_t i, j;
-	double v;
-
-	while (hi - lo >= TAIL_SMALL) {
-		if (depth-- == 0) {
-			tail_sort(a + lo, hi - lo + 1);
-			return;
-		}
-		j = tail_partition(a, lo, hi);
-		if (j - lo < hi - j) {
-			tail_introsort(a, lo, j, depth);
-			lo = j + 1;
-		} else {
-			tail_introsort(a, j + 1, hi, depth);
-			hi = j;
-		}
-	}
-	for (i = lo + 1; i <= hi; i++) {
-		v = a[i];
-		for (j = i; j > lo && v < a[j - 1]; j--)
-			a[j] = a[j - 1];
-		a[j] = v;
-	}
-}
-
 void qw_tail_sort(double *a, size_t n)
 {
-	if (n > 1)
-		tail_introsort(a, 0, n - 1, tail_depth(n));
-}
-
-double qw_tail_select(double *a, size_t n, size_t k)
-{
-	size_t lo = 0, hi = n - 1, j;
-	unsigned depth = tail_depth(n);
-
-	while (hi > lo) {
-		if (depth-- == 0) {
-			tail_sort(a + lo, hi - lo + 1);
-			break;
-		}
-		j = tail_partition(a, lo, hi);
-		if (k <= j)
-			hi = j;
-		else
-			lo = j + 1;
-	}
-	return a[k];
+	qw_sort_double_inplace(a, n);
 }
 
 int qw_tail_fit(double *s, size_t n, double fraction, struct qw_tail *t)

@@ -23,6 +23,7 @@
 #define SORT_RADIX (1u << SORT_BITS)        /* counts per pass */
 #define SORT_PASSES 6u                      /* ceil(64 / SORT_BITS) */
 #define SORT_SIGN (UINT64_C(1) << 63)
+#define SORT_SMALL 16u                      /* insertion-sorted ranges */
 
 static uint64_t sort_key(double d)
 {
@@ -105,42 +106,122 @@ static void sort_swap(double *v, size_t i, size_t j)
 	v[j] = t;
 }
 
+/* Hoare partition of v[lo..hi] (hi > lo) around the median of v[lo],
+ * v[mid], v[hi]: returns j, lo <= j < hi, with v[lo..j] <= v[j+1..hi].
+ * The median of three leaves a value <= the pivot at lo and >= it at hi,
+ * so neither scan runs off the range, and the first scan from lo stops at
+ * mid at the latest, so j < hi and both sides shrink. */
+static size_t sort_partition(double *v, size_t lo, size_t hi)
+{
+	size_t mid = lo + (hi - lo) / 2, i = lo, j = hi;
+	double p;
+
+	if (v[mid] < v[lo])
+		sort_swap(v, lo, mid);
+	if (v[hi] < v[lo])
+		sort_swap(v, lo, hi);
+	if (v[hi] < v[mid])
+		sort_swap(v, mid, hi);
+	p = v[mid];
+	for (;;) {
+		while (v[i] < p)
+			i++;
+		while (p < v[j])
+			j--;
+		if (i >= j)
+			return j;
+		sort_swap(v, i++, j--);
+	}
+}
+
+/* Ascending heap sort of v[0..n): O(n log n) on any input, no recursion;
+ * the fallback of the introsort below. */
+static void sort_heap(double *v, size_t n)
+{
+	size_t start = n / 2, end = n, root, child;
+
+	while (end > 1) {
+		if (start > 0) {
+			start--;
+		} else {
+			end--;
+			sort_swap(v, 0, end);
+		}
+		root = start;
+		while ((child = 2 * root + 1) < end) {
+			if (child + 1 < end && v[child] < v[child + 1])
+				child++;
+			if (!(v[root] < v[child]))
+				break;
+			sort_swap(v, root, child);
+			root = child;
+		}
+	}
+}
+
+/* 2 floor(log2 n): partitions allowed before a range falls back to the
+ * heap sort (introsort; Musser 1997), so no input is quadratic. */
+static unsigned sort_depth(size_t n)
+{
+	unsigned d = 0;
+
+	while (n > 1) {
+		n >>= 1;
+		d += 2;
+	}
+	return d;
+}
+
+/* Introsort of v[lo..hi]: partitions down to SORT_SMALL elements, then
+ * insertion sort; the smaller side by recursion (depth <= log2 n). */
+static void sort_intro(double *v, size_t lo, size_t hi, unsigned depth)
+{
+	size_t i, j;
+	double x;
+
+	while (hi - lo >= SORT_SMALL) {
+		if (depth-- == 0) {
+			sort_heap(v + lo, hi - lo + 1);
+			return;
+		}
+		j = sort_partition(v, lo, hi);
+		if (j - lo < hi - j) {
+			sort_intro(v, lo, j, depth);
+			lo = j + 1;
+		} else {
+			sort_intro(v, j + 1, hi, depth);
+			hi = j;
+		}
+	}
+	for (i = lo + 1; i <= hi; i++) {
+		x = v[i];
+		for (j = i; j > lo && x < v[j - 1]; j--)
+			v[j] = v[j - 1];
+		v[j] = x;
+	}
+}
+
+void qw_sort_double_inplace(double *v, size_t n)
+{
+	if (n > 1)
+		sort_intro(v, 0, n - 1, sort_depth(n));
+}
+
 double qw_select_double(double *v, size_t n, size_t k)
 {
-	size_t lo = 0, hi = n - 1;
+	size_t lo = 0, hi = n - 1, j;
+	unsigned depth = sort_depth(n);
 
 	while (hi > lo) {
-		size_t mid = lo + (hi - lo) / 2, i = lo, j = hi;
-		double pivot;
-
-		/* median of three into v[mid] */
-		if (v[mid] < v[lo])
-			sort_swap(v, mid, lo);
-		if (v[hi] < v[lo])
-			sort_swap(v, hi, lo);
-		if (v[hi] < v[mid])
-			sort_swap(v, hi, mid);
-		pivot = v[mid];
-		/* Hoare partition: v[lo..j] <= pivot <= v[i..hi] */
-		while (i <= j) {
-			while (v[i] < pivot)
-				i++;
-			while (pivot < v[j])
-				j--;
-			if (i <= j) {
-				sort_swap(v, i, j);
-				i++;
-				if (j == 0)
-					break;
-				j--;
-			}
+		if (depth-- == 0) {
+			sort_heap(v + lo, hi - lo + 1);
+			break;
 		}
+		j = sort_partition(v, lo, hi);
 		if (k <= j)
 			hi = j;
-		else if (k >= i)
-			lo = i;
 		else
-			return v[k]; /* between the parts: equal to the pivot */
+			lo = j + 1;
 	}
 	return v[k];
 }

@@ -1,5 +1,7 @@
 /* sort.h: sorting many doubles fast, for the replay summary's quantiles
- * and Kolmogorov-Smirnov distance (10^6 to 10^8 scores and p-values). */
+ * and Kolmogorov-Smirnov distance (10^6 to 10^8 scores and p-values), and
+ * the selection behind a fit's concentration steps (fit.c).  Pure
+ * computation with the caller's memory: part of the core. */
 #ifndef QW_SORT_H
 #define QW_SORT_H
 
@@ -11,10 +13,17 @@
  * gives.  Never fails. */
 void qw_sort_double(double *v, double *tmp, size_t n);
 
+/* Sorts v[0..n) ascending in place with no scratch (no NaN in v):
+ * introsort (median-of-three quicksort, insertion sort below 16, heap
+ * sort past 2 log2 n partitions), O(n log n) on any input.  For arrays
+ * with no scratch beside them; the radix sort above is faster. */
+void qw_sort_double_inplace(double *v, size_t n);
+
 /* The value of rank k (0-based) of v[0..n) (k < n; no NaN in v), v
  * reordered so that v[0..k) <= v[k] <= v[k+1..n): Hoare's FIND with a
- * median-of-three pivot, O(n) expected.  The value is the one a sort puts
- * at k (of equal values, the same double, -0 and +0 aside). */
+ * median-of-three pivot, O(n) expected (a heap sort of what is left after
+ * 2 log2 n partitions).  The value is the one a sort puts at k (of equal
+ * values, the same double, -0 and +0 aside). */
 double qw_select_double(double *v, size_t n, size_t k);
 /* The prob quantile of v[0..n) as gsl_stats_quantile_from_sorted_data
  * takes it from sorted data (linear between ranks floor((n-1) prob) and

@@ -171,6 +171,21 @@ static qw_detector *fit_learn(struct fit_work *w, const struct qw_params *par,
 	return d;
 }
 
+/* w->state holds at least len bytes (a detector's state, saved around
+ * scoring and copied into a twin).  0 or QW_ENOMEM. */
+static int fit_state_buf(struct fit_work *w, size_t len)
+{
+	unsigned char *s;
+
+	if (len <= w->state_len)
+		return 0;
+	if ((s = realloc(w->state, len)) == NULL)
+		return QW_ERROR(QW_ENOMEM);
+	w->state = s;
+	w->state_len = len;
+	return 0;
+}
+
 /* w->pv over [lo, hi) against d, without changing d.  0 or QW_ENOMEM. */
 static int fit_pvalues(struct fit_work *w, qw_detector *d, size_t lo,
 		       size_t hi)
@@ -178,14 +193,8 @@ static int fit_pvalues(struct fit_work *w, qw_detector *d, size_t lo,
 	struct qw_result res;
 	size_t len = qw_detector_state_len(d), i;
 
-	if (len > w->state_len) {
-		unsigned char *s = realloc(w->state, len);
-
-		if (s == NULL)
-			return QW_ERROR(QW_ENOMEM);
-		w->state = s;
-		w->state_len = len;
-	}
+	if (fit_state_buf(w, len) != 0)
+		return QW_ERROR(QW_ENOMEM);
 	qw_detector_state_get(d, w->state);
 	fit_tick(w);
 	for (i = lo; i < hi; i++) {
@@ -264,18 +273,9 @@ static int fit_twin(struct fit_work *w, qw_detector **d)
 {
 	qw_detector *t = qw_detector_alloc(&w->fp);
 	size_t len = qw_detector_state_len(*d);
-	int rc = t != NULL ? 0 : QW_ERROR(QW_ENOMEM);
+	int rc = t != NULL && fit_state_buf(w, len) == 0
+		 ? 0 : QW_ERROR(QW_ENOMEM);
 
-	if (rc == 0 && len > w->state_len) {
-		unsigned char *s = realloc(w->state, len);
-
-		if (s != NULL) {
-			w->state = s;
-			w->state_len = len;
-		} else {
-			rc = QW_ERROR(QW_ENOMEM);
-		}
-	}
 	if (rc == 0) {
 		qw_detector_state_get(*d, w->state);
 		rc = qw_detector_state_set(t, w->state, len);

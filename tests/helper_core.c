@@ -2,10 +2,11 @@
  * (tests/ref_core.py, run by tests/t_ref_scipy.sh and t_ref_numpy.sh).
  *   helper_core limits            grid of alpha, chi-square, corrected
  *                                 limits and p-values
- *   helper_core scores P N H SEED [time]
+ *   helper_core scores P N H SEED [time] [hold]
  *                                 a generated stream and its scores; with
  *                                 "time", H is in seconds and the readings
- *                                 come at irregular times
+ *                                 come at irregular times; with "hold",
+ *                                 partial readings are not learned
  *   helper_core dyn P N H SEED none|ar1|var1
  *                                 a VAR(1) stream with missing channels and
  *                                 gaps in time, scored with that whitening
@@ -85,11 +86,13 @@ static int limits(void)
 #define SCORES_GAP_PROB 0.002
 
 /* A correlated stream with some missing channels and outliers; learn =
- * all, so the reference needs no limit to know what was learned.  With
- * time_based, steps are exponential (mean SCORES_DT_MEAN) with rare long
- * gaps and repeated times, and the half-life is in seconds. */
+ * all, so the reference needs no limit to know what was learned (partial
+ * readings once warm, unless hold).  With time_based, steps are
+ * exponential (mean SCORES_DT_MEAN) with rare long gaps and repeated
+ * times, and the half-life is in seconds.  The header line gives p, n, h,
+ * time_based, the floors, the warm-up and 1 if partial readings learn. */
 static int scores(size_t p, size_t n, double h, unsigned long seed,
-		  int time_based)
+		  int time_based, int hold)
 {
 	struct qw_params par;
 	struct qw_result res;
@@ -111,13 +114,14 @@ static int scores(size_t p, size_t n, double h, unsigned long seed,
 	par.learn = QW_LEARN_ALL;
 	par.time_based = time_based;
 	par.rate = 1.0 / SCORES_DT_MEAN;
+	par.partial = hold ? QW_PARTIAL_HOLD : QW_PARTIAL_LEARN;
 	d = qw_detector_alloc(&par);
 	if (d == NULL)
 		return 1;
 	printf("# %zu %zu %.17g %d", p, n, h, time_based);
 	for (i = 0; i < p; i++)
 		printf(" %.17g", floor[i]);
-	printf("\n");
+	printf(" %llu %d\n", (unsigned long long)par.warmup, !hold);
 	for (k = 0; k < n; k++) {
 		qwt_draw(rng, p, A, mean, z, x);
 		if (k > 10 && gsl_rng_uniform(rng) < 0.02)
@@ -185,7 +189,7 @@ static int dyn(size_t p, size_t n, double h, unsigned long seed,
 	printf("# %zu %zu %.17g %s %.17g", p, n, h, kind, 1.5 / DYN_RATE);
 	for (i = 0; i < p; i++)
 		printf(" %.17g", floor[i]);
-	printf("\n");
+	printf(" %llu\n", (unsigned long long)par.warmup);
 	for (k = 0; k < n; k++) {
 		qwt_var1_step(rng, &v, x);
 		if (k > 10 && gsl_rng_uniform(rng) < DYN_MISSING_PROB)
@@ -210,16 +214,27 @@ int main(int argc, char **argv)
 	gsl_set_error_handler_off();
 	if (argc == 2 && strcmp(argv[1], "limits") == 0)
 		return limits();
-	if ((argc == 6 || argc == 7) && strcmp(argv[1], "scores") == 0)
+	if (argc >= 6 && argc <= 8 && strcmp(argv[1], "scores") == 0) {
+		int i, timed = 0, hold = 0;
+
+		for (i = 6; i < argc; i++) {
+			if (strcmp(argv[i], "time") == 0)
+				timed = 1;
+			else if (strcmp(argv[i], "hold") == 0)
+				hold = 1;
+			else
+				goto usage;
+		}
 		return scores(strtoul(argv[2], NULL, 10),
 			      strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
-			      strtoul(argv[5], NULL, 10),
-			      argc == 7 && strcmp(argv[6], "time") == 0);
+			      strtoul(argv[5], NULL, 10), timed, hold);
+	}
 	if (argc == 7 && strcmp(argv[1], "dyn") == 0)
 		return dyn(strtoul(argv[2], NULL, 10),
 			   strtoul(argv[3], NULL, 10), strtod(argv[4], NULL),
 			   strtoul(argv[5], NULL, 10), argv[6]);
+usage:
 	fprintf(stderr, "usage: helper_core limits | scores P N H SEED "
-		"[time] | dyn P N H SEED none|ar1|var1\n");
+		"[time] [hold] | dyn P N H SEED none|ar1|var1\n");
 	return 2;
 }

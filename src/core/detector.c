@@ -12,8 +12,13 @@
  *    edge, or learned, as configured; while the group is in alarm nothing
  *    is learned (the guard: a fault must not become the new normal), unless
  *    the policy is "all";
- *  - partial readings are scored but never learned, so a missing channel
- *    cannot bias the model;
+ *  - partial readings are scored on the observed channels; once the model
+ *    is warm they are learned by the same rules, by their expected step
+ *    under the model (qw_ewcov_learn_partial, the E-step of EM), so a
+ *    channel that drops out for hours neither freezes the model while the
+ *    plant moves on nor teaches it a value it never saw (partial = hold
+ *    keeps them out); in warm-up, with too little model to impute from,
+ *    only complete readings are learned;
  *  - relearn_after readings spent in alarm re-baseline the group (the
  *    configured policy for a lasting change of normal).
  * Guard bias: a model that learns only readings with q < c (skip) learns
@@ -82,6 +87,7 @@ void qw_params_default(struct qw_params *par, size_t p)
 	par->clear_n = QW_DEF_CLEAR_N;
 	par->floor = NULL;
 	par->learn = QW_LEARN_SKIP;
+	par->partial = QW_PARTIAL_LEARN;
 	par->relearn_after = 0;
 	par->correct = 1;
 	par->dynamics = QW_DYN_NONE;
@@ -106,7 +112,8 @@ int qw_params_check(const struct qw_params *par)
 	/* Infinite: no forgetting (QW_HALF_LIFE_NONE). */
 	if (!(par->half_life > 0) || isnan(par->half_life))
 		return QW_ERROR(QW_EINVAL);
-	if (par->clear_n < 1 || (unsigned)par->learn > QW_LEARN_ALL)
+	if (par->clear_n < 1 || (unsigned)par->learn > QW_LEARN_ALL ||
+	    (unsigned)par->partial > QW_PARTIAL_LEARN)
 		return QW_ERROR(QW_EINVAL);
 	if (!(par->max_gap >= 0) || !(par->fixed_limit >= 0) ||
 	    !isfinite(par->fixed_limit) || !(par->limit_factor > 0) ||
@@ -511,10 +518,14 @@ static void det_mewma_learn(qw_detector *d, const struct qw_result *res)
 }
 
 /* Learning decision and step (file top).  over, q, limit: the reading's
- * own score against its plain limit.  Returns 1 if learned. */
-static int det_learn(qw_detector *d, const double *x, int warm, double w,
-		     int over, double q, double limit, int event)
+ * own score against its plain limit; v its model vector, complete or (once
+ * warm) partial.  Returns 1 if learned. */
+static int det_learn(qw_detector *d, const double *x, const double *v,
+		     int complete, int warm, double w, int over, double q,
+		     double limit, int event)
 {
+	int rc;
+
 	double gain = 1.0;
 
 	if (warm && d->par.learn != QW_LEARN_ALL) {
@@ -525,7 +536,9 @@ static int det_learn(qw_detector *d, const double *x, int warm, double w,
 		if (over)
 			gain = sqrt(limit / q);
 	}
-	if (qw_ewcov_learn(d->ew, gain) != 0)
+	rc = complete ? qw_ewcov_learn(d->ew, gain)
+		      : qw_ewcov_learn_partial(d->ew, v, w, gain);
+	if (rc != 0)
 		return 0;
 	qw_dyn_learn(d->dyn, x, w);
 	d->tshare = (1.0 - w) * d->tshare + (warm ? w : 0.0);
@@ -597,9 +610,10 @@ static void det_decide(qw_detector *d, double t, const double *x,
 		det_explain(d, v, res);
 	/* Under MEWMA the guard watches each reading at its plain limit. */
 	over = d->par.mode == QW_MODE_MEWMA ? warm && q > limit : res->over;
-	if (learn && complete)
-		res->learned = det_learn(d, x, warm, w, over, q, limit,
-					 res->event);
+	if (learn && (complete ||
+		      (warm && d->par.partial == QW_PARTIAL_LEARN)))
+		res->learned = det_learn(d, x, v, complete, warm, w, over, q,
+					 limit, res->event);
 	if (res->learned && d->par.mode == QW_MODE_MEWMA)
 		det_mewma_learn(d, res);
 	if (res->learned)

@@ -26,10 +26,13 @@
  * max_gap (a reading lost on the bus, a restart, time going backwards
  * break it).  var1 then scores the reading against the channels'
  * unconditional model (the x_t block of the joint) and ar1, which has
- * none, leaves it unscored; neither learns it.  A missing channel in
- * either reading makes the pair partial: var1 scores on the observed
- * components (conditioning on the observed lags), ar1 on the channels
- * whose pair is complete; neither learns a partial pair.
+ * none, leaves it unscored.  A missing channel in either reading makes
+ * the pair partial: var1 scores on the observed components (conditioning
+ * on the observed lags), ar1 on the channels whose pair is complete.
+ * Once the model is warm the detector learns such a model vector by its
+ * expected step (qw_ewcov_learn_partial; under var1 a reading with no
+ * pair too, its lags all missing), unless partial = hold; ar1's
+ * coefficients learn from the channels whose pair is complete.
  * Workload: O(p) per reading besides the model's sweep; no allocation
  * after qw_dyn_alloc. */
 #include <math.h>
@@ -144,6 +147,10 @@ void qw_dyn_learn(struct qw_dyn *dy, const double *x, double w)
 	for (i = 0; i < dy->p; i++) {
 		double *a = dy->ar + 4 * i, d1, d2;
 
+		/* A partial pair (learned only once the model is warm, so
+		 * never the first): its complete channels alone. */
+		if (isnan(x[i]) || isnan(dy->prev[i]))
+			continue;
 		if (dy->n == 0) {
 			a[0] = dy->prev[i];
 			a[1] = x[i];

@@ -37,6 +37,15 @@
  * and a replay matches the daemon exactly.  Workload: one sweep of p(p+1)/2
  * elements per reading, p from 1 to a few hundred.
  *
+ * A reading with channels M missing is learned by its expected step under
+ * the model (the E-step of EM for the multivariate normal): with P =
+ * Sigma^-1, the missing residual is its conditional mean r_M = -P_MM^-1
+ * P_MO r_O and its conditional covariance C = P_MM^-1 is added, so
+ * Sigma' = (1-w)(Sigma + w r r' + w C_M): one sweep for r, then one with
+ * a = 1, c = 1 per column of a factor of w(1-w) C (qw_ewcov_learn_partial;
+ * P's columns for M by two triangular solves each, O(k p^2)).  If the
+ * model were the truth, r r' + C_M would average to Sigma, as r r' does
+ * for a complete reading.
  * The effective size behind the limit is tracked by scalar recursions for
  * stationary Gaussian data: V = Var(mu)/Sigma, and the Satterthwaite sums
  * W1 = sum a_k, W2 = sum a_k^2 over the weights a_k = c_k (1 + V_{k-1}) of
@@ -303,10 +312,32 @@ static void ewcov_topup(qw_ewcov *ew)
 	ew->since_topup = 0;
 }
 
+/* The rest of a learned step, once the factor is installed: the mean by
+ * w r (r as learned), the effective-size recursions (file top; V before
+ * its own update), the floor's share, and the top-up when due. */
+static void ewcov_learned(qw_ewcov *ew, double w)
+{
+	size_t i, p = ew->p;
+	double a;
+
+	for (i = 0; i < p; i++)
+		ew->mu[i] += w * ew->r[i];
+	a = (1.0 - w) * w * (1.0 + ew->V);
+	ew->W1 = (1.0 - w) * ew->W1 + a;
+	ew->W2 = (1.0 - w) * (1.0 - w) * ew->W2 + a * a;
+	ew->V = (1.0 - w) * (1.0 - w) * ew->V + w * w;
+	ew->n++;
+	ew->f *= 1.0 - w;
+	ew->since_topup++;
+	if (ew->f < EWCOV_FLOOR_MIN_SHARE ||
+	    (ew->since_topup >= p && ew->f < EWCOV_FLOOR_TOPUP_SHARE))
+		ewcov_topup(ew);
+}
+
 int qw_ewcov_learn(qw_ewcov *ew, double gain)
 {
 	size_t i, p = ew->p;
-	double w = ew->w, a;
+	double w = ew->w;
 
 	if (!ew->pending || !(gain > 0.0 && gain <= 1.0))
 		return QW_ERROR(QW_ESTATE);
@@ -321,19 +352,7 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain)
 			 ewcov_scale_root(ew, w), 0);
 	}
 	ewcov_swap(ew);
-	for (i = 0; i < p; i++)
-		ew->mu[i] += w * ew->r[i];
-	/* Effective-size recursions (file top); V before its own update. */
-	a = (1.0 - w) * w * (1.0 + ew->V);
-	ew->W1 = (1.0 - w) * ew->W1 + a;
-	ew->W2 = (1.0 - w) * (1.0 - w) * ew->W2 + a * a;
-	ew->V = (1.0 - w) * (1.0 - w) * ew->V + w * w;
-	ew->n++;
-	ew->f *= 1.0 - w;
-	ew->since_topup++;
-	if (ew->f < EWCOV_FLOOR_MIN_SHARE ||
-	    (ew->since_topup >= p && ew->f < EWCOV_FLOOR_TOPUP_SHARE))
-		ewcov_topup(ew);
+	ewcov_learned(ew, w);
 	return 0;
 }
 
@@ -368,6 +387,114 @@ int qw_ewcov_score_subset(qw_ewcov *ew, const double *x, double *q,
 		ew->r[i] = isnan(x[i]) ? 0.0 : x[i] - ew->mu[i];
 	*q = qq;
 	*dof = (unsigned)m;
+	return 0;
+}
+
+/* Column i of P = Sigma^-1: col = P e_i, by L z = e_i (z is 0 above row
+ * i) and L' col = z, both on the packed columns.  O(p^2). */
+static void ewcov_inverse_col(const qw_ewcov *ew, size_t i, double *col)
+{
+	size_t j, k, p = ew->p;
+
+	memset(col, 0, p * sizeof *col);
+	col[i] = 1.0;
+	for (k = i; k < p; k++) {
+		const double *c = ew->L + qw_packed_col(p, k) - k;
+
+		col[k] *= ew->iL[k];
+		for (j = k + 1; j < p; j++)
+			col[j] -= c[j] * col[k];
+	}
+	for (k = p; k-- > 0;) {
+		const double *c = ew->L + qw_packed_col(p, k) - k;
+		double s = col[k];
+
+		for (j = k + 1; j < p; j++)
+			s -= c[j] * col[j];
+		col[k] = s * ew->iL[k];
+	}
+}
+
+/* Installs the factor of c^2 (L L' + a u u') for u = ew->u, zero above
+ * j0: the sweep from column j0, the columns before it copied across (the
+ * sweep never works in place).  0, or QW_ERANGE, nothing installed, on a
+ * non-finite sweep. */
+static int ewcov_add_from(qw_ewcov *ew, double a, double c, size_t j0)
+{
+	size_t p = ew->p, o = qw_packed_col(p, j0);
+	double qq;
+
+	memcpy(ew->Ln, ew->L, o * sizeof *ew->L);
+	memcpy(ew->iLn, ew->iL, j0 * sizeof *ew->iL);
+	qq = qw_sweep(ew->L, ew->iL, ew->Ln, ew->iLn, p, ew->u, ew->y, a, c,
+		      j0);
+	if (!isfinite(qq))
+		return QW_ERROR(QW_ERANGE);
+	ewcov_swap(ew);
+	return 0;
+}
+
+int qw_ewcov_learn_partial(qw_ewcov *ew, const double *x, double w,
+			   double gain)
+{
+	size_t i, t, s, k = 0, p = ew->p;
+	double *pmm = ew->sub, *b, *g, sc;
+	int rc;
+
+	ew->pending = 0;
+	if (ew->n < 1 || !(w > 0.0 && w <= 1.0) ||
+	    !(gain > 0.0 && gain <= 1.0))
+		return QW_ERROR(QW_ESTATE);
+	for (i = 0; i < p; i++) {
+		if (isnan(x[i]))
+			ew->idx[k++] = i;
+		ew->r[i] = isnan(x[i]) ? 0.0 : x[i] - ew->mu[i];
+	}
+	if (k == p)
+		return QW_ERROR(QW_ENODATA);
+	/* P_MM and b = P_M. r0 (r0: the observed residual, 0 at M). */
+	b = pmm + k * k;
+	for (t = 0; t < k; t++) {
+		ewcov_inverse_col(ew, ew->idx[t], ew->u);
+		for (s = 0; s < k; s++)
+			pmm[t * k + s] = ew->u[ew->idx[s]];
+		b[t] = 0.0;
+		for (i = 0; i < p; i++)
+			b[t] += ew->u[i] * ew->r[i];
+	}
+	if (qw_dense_cholesky(pmm, k) != 0) /* P_MM = R R' */
+		return QW_ERROR(QW_ENUMERIC);
+	/* r_M = -P_MM^-1 b: the conditional mean of the missing part. */
+	qw_dense_forward(pmm, k, b);
+	qw_dense_backward(pmm, k, b);
+	for (t = 0; t < k; t++)
+		ew->r[ew->idx[t]] = -gain * b[t];
+	for (i = 0; i < p; i++) {
+		if (!isnan(x[i]))
+			ew->r[i] *= gain;
+		if (!isfinite(ew->r[i]))
+			return QW_ERROR(QW_ERANGE);
+	}
+	/* (1-w)(Sigma + w r r'), then + w(1-w) C_M, C = P_MM^-1 = G G' with
+	 * G = R'^-1 (upper): one rank-one step per column of G.  A step that
+	 * overflows (only a near-singular block can) is left out: the factor
+	 * stays a valid one, with less added. */
+	memcpy(ew->u, ew->r, p * sizeof *ew->u);
+	if ((rc = ewcov_add_from(ew, w, ewcov_scale_root(ew, w), 0)) != 0)
+		return rc;
+	sc = sqrt(w * (1.0 - w));
+	g = pmm + k * k;
+	for (t = 0; t < k && sc > 0.0; t++) {
+		memset(g, 0, k * sizeof *g);
+		g[t] = 1.0;
+		qw_dense_backward(pmm, k, g);
+		memset(ew->u, 0, p * sizeof *ew->u);
+		for (s = 0; s <= t; s++)
+			ew->u[ew->idx[s]] = sc * g[s];
+		if (ewcov_add_from(ew, 1.0, 1.0, ew->idx[0]) != 0)
+			break;
+	}
+	ewcov_learned(ew, w);
 	return 0;
 }
 

@@ -75,6 +75,19 @@ void qw_dense_forward(const double *l, size_t m, double *b)
 	}
 }
 
+void qw_dense_backward(const double *l, size_t m, double *b)
+{
+	size_t i, k;
+
+	for (i = m; i-- > 0;) {
+		double s = b[i];
+
+		for (k = i + 1; k < m; k++)
+			s -= l[k * m + i] * b[k];
+		b[i] = s / l[i * m + i];
+	}
+}
+
 size_t qw_explain_work_len(size_t p)
 {
 	return 2 * p * p + 4 * p;

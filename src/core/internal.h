@@ -29,6 +29,8 @@ void qw_marginal_cov(const double *L, size_t p, const size_t *idx, size_t m,
 int qw_dense_cholesky(double *a, size_t m);
 /* Solves the lower-triangular dense system L y = b in place (b -> y). */
 void qw_dense_forward(const double *l, size_t m, double *b);
+/* Solves L' y = b in place, L as for qw_dense_forward. */
+void qw_dense_backward(const double *l, size_t m, double *b);
 
 /* r = x - mu of the last reading scored by ew (0 for missing channels). */
 const double *qw_ewcov_residual(const qw_ewcov *ew);

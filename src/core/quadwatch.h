@@ -80,9 +80,24 @@ int qw_ewcov_learn(qw_ewcov *ew, double gain);
 /* First reading: sets the mean to x (finite), count to 1. */
 void qw_ewcov_first(qw_ewcov *ew, const double *x);
 /* Score a reading whose missing channels are NaN against the marginal model
- * of the observed ones; *dof = number observed.  Does not learn. */
+ * of the observed ones; *dof = number observed.  Does not learn (see
+ * qw_ewcov_learn_partial). */
 int qw_ewcov_score_subset(qw_ewcov *ew, const double *x, double *q,
 			  unsigned *dof);
+/* Learn a reading whose missing channels are NaN (at least one observed),
+ * with weight w and gain as qw_ewcov_learn: the expected step under the
+ * model given what was observed (the E-step of EM), so the observed part
+ * is learned as it is and the missing part neither moves the model nor
+ * freezes it.  With r_M the conditional mean of the missing residual and
+ * C its conditional covariance, mu' = mu + w r and
+ *   Sigma' = (1-w)(Sigma + w r r' + w C_M),
+ * one sweep for r and one per missing channel for C, O(k p^2) for k
+ * missing; needs no prepared score.  QW_ESTATE (w or gain out of range),
+ * QW_ENODATA (every channel missing), QW_ENUMERIC when the missing block is
+ * numerically singular, QW_ERANGE on overflow; the model is then
+ * untouched. */
+int qw_ewcov_learn_partial(qw_ewcov *ew, const double *x, double w,
+			   double gain);
 /* Distribution of the next score: q ~ scale * T2(p, nu) (see limit.c). */
 double qw_ewcov_nu(const qw_ewcov *ew);
 double qw_ewcov_scale(const qw_ewcov *ew);
@@ -173,6 +188,14 @@ enum qw_learn {
 	QW_LEARN_ALL = 2   /* everything is learned (no contamination guard) */
 };
 
+/* Readings with channels missing (NaN): always scored on the observed
+ * channels; once the model is warm, learned by their expected step under
+ * the model (qw_ewcov_learn_partial), or held out. */
+enum qw_partial {
+	QW_PARTIAL_HOLD = 0,  /* scored, never learned */
+	QW_PARTIAL_LEARN = 1  /* learned when warm (default) */
+};
+
 /* Temporal whitening (dynamics.c): what is scored. */
 enum qw_dynamics {
 	QW_DYN_NONE = 0,  /* the reading itself against the EW mean */
@@ -200,6 +223,7 @@ struct qw_params {
 	unsigned clear_n;       /* consecutive readings under to clear */
 	const double *floor;    /* p floors (std dev, units); NULL/0 = auto */
 	enum qw_learn learn;    /* contamination guard */
+	enum qw_partial partial; /* readings with channels missing */
 	uint64_t relearn_after; /* readings in alarm before automatic
 				   re-baseline; 0 = only on request */
 	int correct;            /* 1: finite-sample corrected limit (default);

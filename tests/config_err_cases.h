@@ -92,6 +92,8 @@ static const struct err_case err_cases[] = {
 	{G "clear = 2.5\n", "t.ini:3: [group a] clear: expected"},
 	{G "learn = maybe\n", "t.ini:3: [group a] learn: expected skip, clip "
 	 "or all; got 'maybe'"},
+	{G "partial = sometimes\n", "t.ini:3: [group a] partial: expected "
+	 "learn or hold; got 'sometimes'"},
 	{G "mode = fancy\n", "t.ini:3: [group a] mode: expected plain or "
 	 "mewma; got 'fancy'"},
 	{G "mode = mewma\npersist = 2/3\n", "t.ini:4: [group a] persist: "

@@ -224,6 +224,7 @@ static void test_defaults(void **state)
 	assert_int_equal(p->persist_m, def.persist_m);
 	assert_int_equal(p->clear_n, def.clear_n);
 	assert_int_equal(p->learn, def.learn);
+	assert_int_equal(p->partial, QW_PARTIAL_LEARN);
 	assert_int_equal(p->relearn_after, 0);
 	assert_int_equal(p->correct, 1);
 	assert_true(c.groups[0].floor[0] == 0 && c.groups[0].floor[2] == 0);
@@ -330,6 +331,7 @@ static void test_group_keys(void **state)
 		"channels = speed, flow, dp\n"
 		"floor = 2.385\n"
 		"persist = 3/5\nclear = 17\nlearn = clip\ncorrect = no\n"
+		"partial = HOLD\n"
 		"mode = plain\nalarms_per_day = 0.73\n"
 		"[group b]\nchannels = x:1, y/2\nfloor = 0, 0.5\nlearn = ALL\n"
 		"dynamics = VAR1\nmax_gap = 2.385s\nmode = mewma\n"
@@ -344,10 +346,11 @@ static void test_group_keys(void **state)
 	assert_int_equal(g->params.persist_m, 5);
 	assert_int_equal(g->params.clear_n, 17);
 	assert_int_equal(g->params.learn, QW_LEARN_CLIP);
+	assert_int_equal(g->params.partial, QW_PARTIAL_HOLD);
 	assert_int_equal(g->params.correct, 0);
 	assert_true(g->params.alarms_per_day == 0.73);
 	g = &c.groups[1];
-	assert_int_equal(g->line, 10);
+	assert_int_equal(g->line, 11);
 	assert_string_equal(g->channels[0], "x:1");
 	assert_string_equal(g->channels[1], "y/2");
 	assert_true(g->floor[0] == 0 && g->floor[1] == 0.5);

@@ -178,6 +178,14 @@ static void chk_params(const struct qw_group_conf *g)
 	       (double)par->warmup / par->rate);
 	chk_kv(2, "learn", "%s", learn[par->learn <= QW_LEARN_ALL ?
 				      par->learn : 0]);
+	chk_kv(2, "partial", "%s",
+	       par->mode == QW_MODE_MEWMA
+		       ? "not scored, not learned (mewma charts complete "
+			 "readings)"
+	       : par->partial == QW_PARTIAL_LEARN
+		       ? "learn (once warm: missing channels by their "
+			 "expected value)"
+		       : "hold (scored, never learned)");
 	if (par->relearn_after > 0)
 		chk_kv(2, "relearn_after", "%llu readings",
 		       (unsigned long long)par->relearn_after);

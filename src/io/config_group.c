@@ -24,7 +24,7 @@
 
 enum grp_key {
 	GK_CHANNELS, GK_HALF_LIFE, GK_ALARMS, GK_RATE, GK_WARMUP, GK_PERSIST,
-	GK_CLEAR, GK_FLOOR, GK_LEARN, GK_RELEARN, GK_MODE, GK_CORRECT,
+	GK_CLEAR, GK_FLOOR, GK_LEARN, GK_PARTIAL, GK_RELEARN, GK_MODE, GK_CORRECT,
 	GK_DYNAMICS, GK_MAX_GAP, GK_SMOOTHING,
 	GK_MODEL, GK_MODEL_USE,
 	GK_COUNT
@@ -248,6 +248,14 @@ static int grp_choice(struct cfg_parse *ps, const char *v,
 	return cfg_bad(ps, "expected %s; got '%s'", list, v);
 }
 
+static int grp_partial(struct cfg_parse *ps, const char *v)
+{
+	/* index = enum qw_partial */
+	static const char *const names[] = {"hold", "learn"};
+
+	return grp_choice(ps, v, names, 2, "learn or hold", &ps->grp.partial);
+}
+
 static int grp_mode(struct cfg_parse *ps, const char *v)
 {
 	static const char *const names[] = {"plain", "mewma"};
@@ -333,6 +341,7 @@ const struct cfg_key cfg_group_keys[GK_COUNT + 1] = {
 	[GK_CLEAR] = {"clear", grp_clear, 0},
 	[GK_FLOOR] = {"floor", grp_floor, 1},
 	[GK_LEARN] = {"learn", grp_learn, 0},
+	[GK_PARTIAL] = {"partial", grp_partial, 0},
 	[GK_RELEARN] = {"relearn_after", grp_relearn, 0},
 	[GK_MODE] = {"mode", grp_mode, 0},
 	[GK_CORRECT] = {"correct", grp_correct, 0},
@@ -420,6 +429,8 @@ static int grp_params(struct cfg_parse *ps, struct qw_group_conf *g)
 		par->clear_n = t->clear_n;
 	if (kl[GK_LEARN])
 		par->learn = (enum qw_learn)t->learn;
+	if (kl[GK_PARTIAL])
+		par->partial = (enum qw_partial)t->partial;
 	if (kl[GK_CORRECT])
 		par->correct = t->correct;
 	if (kl[GK_DYNAMICS])

@@ -28,6 +28,7 @@ struct cfg_group_tmp {
 	int warmup_s;
 	unsigned k, m, clear_n;
 	int learn;                       /* enum qw_learn */
+	int partial;                     /* enum qw_partial */
 	double relearn;                  /* readings, or seconds if relearn_s */
 	int relearn_s;
 	int correct;

@@ -315,7 +315,7 @@ static void ewcov_topup(qw_ewcov *ew)
 /* The rest of a learned step, once the factor is installed: the mean by
  * w r (r as learned), the effective-size recursions (file top; V before
  * its own update), the floor's share, and the top-up when due. */
-static void ewcov_learned(qw_ewcov *ew, double w)
+static inline void ewcov_learned(qw_ewcov *ew, double w)
 {
 	size_t i, p = ew->p;
 	double a;
